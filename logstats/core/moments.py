@@ -166,15 +166,37 @@ def _normalize_axes(axis: int | Sequence[int], ndim: int) -> tuple[int, ...]:
     return tuple(sorted(out))
 
 
+#: Rows handled at once by :func:`moments_by_codes`; bounds the temporaries to a few times this many floats.
+CHUNK_ROWS = 1 << 20
+
+
 def moments_by_codes(values: Any, codes: Any, ngroups: int, *, where: str = "the input",
-                     logged: LoggedValues | None = None) -> LogMoments:
+                     chunk_rows: int = CHUNK_ROWS) -> LogMoments:
     """Log-moments per group along the **last** axis of ``values``.
 
     ``codes`` (length = last axis) gives each position's group in ``0 .. ngroups-1``; negative codes
     (missing keys) belong to no group. The result has shape ``values.shape[:-1] + (ngroups,)``. One
-    ``np.bincount`` pass per statistic over all groups at once: no Python loop over groups.
+    ``np.bincount`` pass per statistic over all groups at once: no Python loop over groups. Long inputs
+    are taken ``chunk_rows`` positions at a time and the pieces merged with :func:`merge_two`, which keeps
+    the extra memory bounded whatever the length.
     """
-    lv = logged if logged is not None else to_logs(values, where=where)
+    arr = np.asarray(values)
+    codes = np.asarray(codes)
+    N = arr.shape[-1] if arr.ndim else 1
+    if N <= chunk_rows:
+        return _moments_by_codes(arr, codes, ngroups, where=where)
+    out = None
+    for start in range(0, N, chunk_rows):
+        part = _moments_by_codes(
+            arr[..., start : start + chunk_rows], codes[start : start + chunk_rows], ngroups, where=where
+        )
+        out = part if out is None else merge_two(out, part)
+    assert out is not None
+    return out
+
+
+def _moments_by_codes(values: Any, codes: Any, ngroups: int, *, where: str) -> LogMoments:
+    lv = to_logs(values, where=where)
     y = lv.y
     codes = np.asarray(codes, dtype=np.intp)
     if y.ndim == 0:

@@ -1,0 +1,28 @@
+"""logstats: log-scale statistics for multiplicative data in pandas and xarray.
+
+``import logstats`` registers the ``.logstats`` accessor on pandas Series/DataFrame and xarray
+DataArray/Dataset (and dask DataFrame when dask is installed). Array-level functions with an
+``axis=`` argument are importable from here too.
+"""
+
+from logstats.accessors import pandas as _pandas_accessor  # noqa: F401  (registers the accessors)
+from logstats.accessors import xarray as _xarray_accessor  # noqa: F401
+from logstats.accessors.arrays import combine_moments, exp, gcv, gmean, gsd, log, moments, summary
+from logstats.core.moments import LogMoments
+from logstats.core.transform import LogstatsWarning
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "LogMoments",
+    "LogstatsWarning",
+    "__version__",
+    "combine_moments",
+    "exp",
+    "gcv",
+    "gmean",
+    "gsd",
+    "log",
+    "moments",
+    "summary",
+]

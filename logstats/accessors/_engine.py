@@ -1,0 +1,131 @@
+"""The one reduction path every container goes through (adapter layer: no formulas here).
+
+Data arrive as a numpy or dask array whose reduced axes are last. The engine builds log-moments per
+block (core), merges them (core), then *finalizes* them into the requested fields (statistics layer).
+The same finalizer runs on numpy results directly and on dask results block by block, so a dask-backed
+input gives lazy results equal to the in-memory ones.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from typing import Any
+
+import numpy as np
+
+from logstats.core.moments import FIELDS, LogMoments, moments_along, moments_by_codes
+from logstats.core.transform import check_nonpositive, nonpositive_message
+from logstats.stats import estimate
+
+__all__ = ["FINALIZERS", "finalize", "is_dask", "stacked_moments"]
+
+
+def is_dask(data: Any) -> bool:
+    mod = type(data).__module__
+    return mod.startswith("dask.") and hasattr(data, "chunks")
+
+
+def stacked_moments(data: Any, *, nred: int, codes: np.ndarray | None = None, ngroups: int | None = None,
+                    where: str = "the input") -> Any:
+    """Moments of ``data`` over its last ``nred`` axes, stacked with a trailing field axis (``FIELDS``).
+
+    Without ``codes`` the result has shape ``data.shape[:-nred] + (6,)``; with ``codes`` (one reduced
+    axis) ``data.shape[:-1] + (ngroups, 6)``. Dask arrays stay lazy (see :mod:`logstats.accessors.dask`).
+    """
+    if is_dask(data):
+        from logstats.accessors.dask import dask_stacked_moments
+
+        return dask_stacked_moments(data, nred=nred, codes=codes, ngroups=ngroups, where=where)
+    if codes is None:
+        axes = tuple(range(np.ndim(data) - nred, np.ndim(data)))
+        return moments_along(data, axis=axes, where=where).stack()
+    if nred != 1:
+        raise ValueError("grouped reductions take exactly one reduced axis")
+    return moments_by_codes(data, codes, int(ngroups or 0), where=where).stack()
+
+
+# --------------------------------------------------------------------------- finalizers
+# Each maps policy-checked LogMoments to an ordered dict of float arrays.
+
+def _fields_moments(m: LogMoments, **_: Any) -> dict[str, np.ndarray]:
+    return m.to_dict()
+
+
+def _fields_summary(m: LogMoments, *, confidence_level: float = 0.95, ddof: float = 1,
+                    **_: Any) -> dict[str, np.ndarray]:
+    return estimate.summary_fields(m, confidence_level=confidence_level, ddof=ddof)
+
+
+def _fields_gmean(m: LogMoments, **_: Any) -> dict[str, np.ndarray]:
+    return {"gmean": estimate.gmean(m)}
+
+
+def _fields_gsd(m: LogMoments, *, ddof: float = 1, **_: Any) -> dict[str, np.ndarray]:
+    return {"gsd": estimate.gsd(m, ddof)}
+
+
+def _fields_gcv(m: LogMoments, *, ddof: float = 1, **_: Any) -> dict[str, np.ndarray]:
+    return {"gcv": estimate.gcv(m, ddof)}
+
+
+FINALIZERS: dict[str, tuple[Callable[..., dict[str, np.ndarray]], tuple[str, ...]]] = {
+    "moments": (_fields_moments, FIELDS),
+    "summary": (
+        _fields_summary,
+        ("n", "n_missing", "n_nonpositive", "gmean", "gsd", "gcv", "ci_low", "ci_high", "ci_factor"),
+    ),
+    "gmean": (_fields_gmean, ("gmean",)),
+    "gsd": (_fields_gsd, ("gsd",)),
+    "gcv": (_fields_gcv, ("gcv",)),
+}
+
+INT_FIELDS = frozenset({"n", "n_missing", "n_nonpositive", "n_censored"})
+
+
+def register_finalizer(kind: str, fn: Callable[..., dict[str, np.ndarray]], names: Sequence[str]) -> None:
+    FINALIZERS[kind] = (fn, tuple(names))
+
+
+def check_policy(m: LogMoments, *, nonpositive: str, where: str, labels: Sequence[Any] | None) -> None:
+    """Raise for ``nonpositive="raise"``, naming the groups (last axis) and the count."""
+    if nonpositive != "raise":
+        return
+    bad = np.asarray(m.n_nonpositive)
+    total = int(bad.sum())
+    if not total:
+        return
+    groups = None
+    if labels is not None and bad.ndim >= 1:
+        per_group = bad.reshape(-1, bad.shape[-1]).sum(axis=0)
+        groups = [labels[i] for i in np.flatnonzero(per_group)]
+    raise ValueError(nonpositive_message(where, total, groups))
+
+
+def finalize_numpy(stacked: np.ndarray, *, kind: str, skipna: bool, nonpositive: str, where: str,
+                   labels: Sequence[Any] | None, params: dict[str, Any]) -> np.ndarray:
+    fn, names = FINALIZERS[kind]
+    m = LogMoments.unstack(np.asarray(stacked))
+    check_policy(m, nonpositive=nonpositive, where=where, labels=labels)
+    if kind != "moments":
+        m = m.with_policy(skipna=skipna, nonpositive=nonpositive)
+    out = fn(m, **params)
+    return np.stack([np.asarray(out[k], dtype=np.float64) for k in names], axis=-1)
+
+
+def finalize(stacked: Any, *, kind: str, skipna: bool = True, nonpositive: str = "raise",
+             where: str = "the input", labels: Sequence[Any] | None = None,
+             params: dict[str, Any] | None = None) -> tuple[Any, tuple[str, ...]]:
+    """Turn stacked moments into stacked result fields; lazy for dask input.
+
+    Returns ``(array with trailing field axis, field names)``.
+    """
+    check_nonpositive(nonpositive)
+    if kind not in FINALIZERS:
+        raise ValueError(f"unknown reduction {kind!r}")
+    names = FINALIZERS[kind][1]
+    kw = dict(kind=kind, skipna=skipna, nonpositive=nonpositive, where=where, labels=labels,
+              params=params or {})
+    if is_dask(stacked):
+        chunks = stacked.chunks[:-1] + ((len(names),),)
+        return stacked.map_blocks(finalize_numpy, chunks=chunks, dtype=np.float64, **kw), names
+    return finalize_numpy(stacked, **kw), names

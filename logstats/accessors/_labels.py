@@ -1,0 +1,160 @@
+"""Label handling shared by the pandas adapters: group keys to integer codes, value columns to arrays."""
+
+from __future__ import annotations
+
+import warnings
+from collections.abc import Hashable, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from logstats.core.transform import LogstatsWarning
+
+__all__ = ["Groups", "column_values", "factorize_keys", "resolve_keys", "value_columns"]
+
+
+@dataclass(frozen=True)
+class Groups:
+    codes: np.ndarray  # intp, -1 = row in no group
+    ngroups: int
+    index: pd.Index  # one entry per group, in code order
+    names: list[Hashable]
+    n_unkeyed: int  # rows left out because a key is missing
+
+    @property
+    def labels(self) -> list[Any]:
+        return list(self.index)
+
+
+def resolve_keys(obj: pd.DataFrame | pd.Series, by: Any) -> list[pd.Series]:
+    """``by`` as a list of key Series aligned to ``obj`` (column names, index level names, Series, arrays)."""
+    items = by if isinstance(by, list) else [by]
+    if not items:
+        raise ValueError("by= is an empty list; pass a column name, a list of names, or an aligned Series")
+    keys: list[pd.Series] = []
+    for item in items:
+        if isinstance(item, pd.Series):
+            key = item
+            if not key.index.equals(obj.index):
+                if len(key) == len(obj) and not key.index.is_unique:
+                    raise ValueError(f"by= Series {key.name!r} has an index that does not match the data's")
+                key = key.reindex(obj.index)
+            keys.append(key)
+        elif isinstance(item, (np.ndarray, pd.Index, pd.Categorical)):
+            if len(item) != len(obj):
+                raise ValueError(f"by= array has length {len(item)}, the data has {len(obj)} rows")
+            keys.append(pd.Series(item, index=obj.index, name=getattr(item, "name", None)))
+        elif isinstance(obj, pd.DataFrame) and item in obj.columns:
+            keys.append(obj[item])
+        elif item in (obj.index.names or []) and item is not None:
+            keys.append(pd.Series(obj.index.get_level_values(item), index=obj.index, name=item))
+        else:
+            where = list(obj.columns) if isinstance(obj, pd.DataFrame) else list(obj.index.names)
+            raise KeyError(f"by={item!r} is not a column or index level; there are {where!r}")
+    return keys
+
+
+def factorize_keys(keys: Sequence[pd.Series], *, observed: bool = True, dropna: bool = True,
+                   sort: bool = True) -> Groups:
+    """Integer group codes for one or several keys, grouped as ``DataFrame.groupby`` would.
+
+    Categorical keys keep unobserved levels only with ``observed=False`` (then, as in pandas, groups
+    are the product of the keys' levels); NaN keys are left out with ``dropna=True`` (counted, and a
+    LogstatsWarning says how many rows) or form their own group with ``dropna=False``.
+    """
+    codes_list, levels_list = [], []
+    any_cat = False
+    for key in keys:
+        if isinstance(key.dtype, pd.CategoricalDtype):
+            any_cat = True
+            cat = key.array
+            codes = np.asarray(cat.codes, dtype=np.intp)
+            levels = pd.Index(cat.categories)
+        else:
+            codes, levels = pd.factorize(key, sort=sort, use_na_sentinel=True)
+            codes = np.asarray(codes, dtype=np.intp)
+            levels = pd.Index(levels)
+        if not dropna and (codes < 0).any():
+            codes = np.where(codes < 0, len(levels), codes)
+            levels = levels.append(pd.Index([np.nan]))
+        codes_list.append(codes)
+        levels_list.append(levels)
+    n = len(codes_list[0])
+    keyed = np.ones(n, dtype=bool)
+    for c in codes_list:
+        keyed &= c >= 0
+    n_unkeyed = int(n - keyed.sum())
+    dims = tuple(len(lv) for lv in levels_list)
+    if len(codes_list) == 1:
+        flat = codes_list[0]
+    else:
+        flat = np.full(n, -1, dtype=np.intp)
+        if keyed.any():
+            flat[keyed] = np.ravel_multi_index(tuple(c[keyed] for c in codes_list), dims)
+    total = int(np.prod(dims)) if dims else 0
+    if not observed and any_cat:
+        uniq = np.arange(total, dtype=np.intp)
+        out_codes = flat
+    else:
+        uniq = np.unique(flat[keyed])  # ascending codes: sorted key order (first-seen order if sort=False)
+        if len(uniq) == total:
+            out_codes = flat  # every combination observed: the codes are already final
+        else:
+            lookup = np.full(total, -1, dtype=np.intp)
+            lookup[uniq] = np.arange(len(uniq), dtype=np.intp)
+            out_codes = np.where(keyed, lookup[np.where(keyed, flat, 0)], -1)
+    names = [k.name for k in keys]
+    if len(codes_list) == 1:
+        index = levels_list[0].take(uniq)
+        index.name = names[0]
+    else:
+        parts = np.unravel_index(uniq, dims)
+        index = pd.MultiIndex.from_arrays([lv.take(p) for lv, p in zip(levels_list, parts)], names=names)
+    if n_unkeyed and dropna:
+        warnings.warn(
+            f"{n_unkeyed} row(s) have a missing value in the group key(s) {names!r} and are left out, "
+            "as pandas groupby does; pass dropna=False to keep them as a group of their own",
+            LogstatsWarning,
+            stacklevel=4,
+        )
+    return Groups(codes=np.asarray(out_codes, dtype=np.intp), ngroups=len(uniq), index=index,
+                  names=names, n_unkeyed=n_unkeyed)
+
+
+def _is_value_dtype(dtype: Any) -> bool:
+    return pd.api.types.is_numeric_dtype(dtype) and not pd.api.types.is_bool_dtype(dtype)
+
+
+def value_columns(df: pd.DataFrame, columns: Any, exclude: Sequence[Hashable] = ()) -> list[Hashable]:
+    """The value columns: named ones (checked) or, by default, numeric non-boolean columns not in ``by``."""
+    if columns is None:
+        cols = [c for c in df.columns if c not in set(exclude) and _is_value_dtype(df[c].dtype)]
+        if not cols:
+            raise TypeError(
+                f"no numeric value columns to summarise (columns: {list(df.columns)!r}; group keys: "
+                f"{list(exclude)!r}); pass columns= to name them"
+            )
+        return cols
+    cols = [columns] if not isinstance(columns, (list, tuple, pd.Index)) else list(columns)
+    missing = [c for c in cols if c not in df.columns]
+    if missing:
+        raise KeyError(f"columns {missing!r} are not in the data; there are {list(df.columns)!r}")
+    bad = [c for c in cols if not _is_value_dtype(df[c].dtype)]
+    if bad:
+        kinds = ", ".join(f"{c!r} ({df[c].dtype})" for c in bad)
+        raise TypeError(
+            f"column(s) {kinds} are not numeric; logstats needs positive numbers. Convert them "
+            "(e.g. pd.to_numeric) or leave them out of columns="
+        )
+    return cols
+
+
+def column_values(s: pd.Series, name: Hashable) -> np.ndarray:
+    """A numeric column as float64 (a view when it already is one); pd.NA becomes NaN."""
+    if not _is_value_dtype(s.dtype):
+        raise TypeError(f"column {name!r} has dtype {s.dtype}, which is not numeric")
+    if s.dtype == np.float64:
+        return s.to_numpy(copy=False)
+    return s.to_numpy(dtype=np.float64, na_value=np.nan)

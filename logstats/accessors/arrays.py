@@ -1,0 +1,160 @@
+"""Array-level public functions (numpy or dask arrays, with ``axis=``) and ``combine_moments``.
+
+These are the adapter for plain arrays: the same engine as the accessors, without labels.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from typing import Any
+
+import numpy as np
+
+from logstats.accessors._engine import finalize, is_dask, stacked_moments
+from logstats.core import moments as _core_moments
+from logstats.core.moments import FIELDS, LogMoments
+from logstats.core.transform import exp_values, log_values
+
+__all__ = ["combine_moments", "exp", "gcv", "gmean", "gsd", "log", "moments", "summary"]
+
+
+def _prepare(x: Any, axis: Any) -> tuple[Any, int]:
+    if not is_dask(x):
+        x = np.asarray(x)
+    nd = x.ndim
+    if axis is None:
+        axes = tuple(range(nd))
+    else:
+        axes = tuple(int(a) % nd if nd else 0 for a in ((axis,) if np.isscalar(axis) else axis))
+        for a in (axis,) if np.isscalar(axis) else axis:
+            if not -nd <= int(a) < nd:
+                raise ValueError(f"axis {a} is out of bounds for an array of {nd} dimension(s)")
+    if nd == 0:
+        x = x.reshape(1)
+        axes = (0,)
+        nd = 1
+    keep = [i for i in range(nd) if i not in axes]
+    return x.transpose(keep + list(axes)), len(axes)
+
+
+def _run(kind: str, x: Any, axis: Any, *, skipna: bool, nonpositive: str,
+         params: dict[str, Any] | None = None) -> tuple[Any, tuple[str, ...]]:
+    data, nred = _prepare(x, axis)
+    st = stacked_moments(data, nred=nred, where="the input")
+    return finalize(st, kind=kind, skipna=skipna, nonpositive=nonpositive, where="the input", params=params)
+
+
+def _scalar(a: Any) -> Any:
+    if is_dask(a):
+        return a
+    return float(a) if np.ndim(a) == 0 else a
+
+
+def gmean(x: Any, *, axis: Any = None, skipna: bool = True, nonpositive: str = "raise") -> Any:
+    """Geometric mean ``exp(mean(ln x))`` over ``axis`` (None = all). Same as ``scipy.stats.gmean``
+    for positive data, without overflow for values near 1e±300.
+
+    Examples
+    --------
+    >>> import logstats
+    >>> round(logstats.gmean([1e300, 1e-300, 1.0]), 12)
+    1.0
+    """
+    out, _ = _run("gmean", x, axis, skipna=skipna, nonpositive=nonpositive)
+    return _scalar(out[..., 0])
+
+
+def gsd(x: Any, *, axis: Any = None, ddof: float = 1, skipna: bool = True, nonpositive: str = "raise") -> Any:
+    """Geometric standard deviation ``exp(sd(ln x))`` with ``ddof=1`` (``scipy.stats.gstd``'s default)."""
+    out, _ = _run("gsd", x, axis, skipna=skipna, nonpositive=nonpositive, params={"ddof": ddof})
+    return _scalar(out[..., 0])
+
+
+def gcv(x: Any, *, axis: Any = None, ddof: float = 1, skipna: bool = True, nonpositive: str = "raise") -> Any:
+    """Geometric coefficient of variation ``sqrt(exp(s²) − 1)``, s with ``ddof=1``."""
+    out, _ = _run("gcv", x, axis, skipna=skipna, nonpositive=nonpositive, params={"ddof": ddof})
+    return _scalar(out[..., 0])
+
+
+def moments(x: Any, *, axis: Any = None) -> LogMoments:
+    """The :class:`LogMoments` of ``x`` over ``axis`` (dask input: fields are lazy dask arrays)."""
+    out, _ = _run("moments", x, axis, skipna=True, nonpositive="drop")
+    if is_dask(out):
+        return LogMoments(**{k: out[..., i].astype(np.int64) if k.startswith("n") else out[..., i]
+                             for i, k in enumerate(FIELDS)})
+    return LogMoments.unstack(out)
+
+
+def summary(x: Any, *, axis: Any = None, confidence_level: float = 0.95, ddof: float = 1, skipna: bool = True,
+            nonpositive: str = "raise") -> dict[str, Any]:
+    """The ``summary()`` fields over ``axis`` as a dict of arrays (or floats)."""
+    out, names = _run("summary", x, axis, skipna=skipna, nonpositive=nonpositive,
+                      params={"confidence_level": confidence_level, "ddof": ddof})
+    return {k: _scalar(out[..., i]) for i, k in enumerate(names)}
+
+
+def log(x: Any, *, base: Any = "e", nonpositive: str = "raise") -> np.ndarray:
+    """Same-shape log transform with the bad-value policy (``"drop"``/``"nan"`` put NaN in place)."""
+    return log_values(x, base=base, nonpositive=nonpositive)
+
+
+def exp(x: Any, *, base: Any = "e") -> np.ndarray:
+    """Exact inverse of :func:`log`."""
+    return exp_values(x, base=base)
+
+
+def combine_moments(parts: Iterable[Any]) -> Any:
+    """Merge moment sets exactly (Chan et al. 1979): ``LogMoments``, ``moments()`` DataFrames or Datasets.
+
+    DataFrames are aligned on their index (groups missing from a part count as empty), Datasets on
+    their coords, so summaries of separate files or plates can be merged afterwards.
+    """
+    items = list(parts)
+    if not items:
+        raise ValueError("combine_moments needs at least one set of moments")
+    first = items[0]
+    if isinstance(first, LogMoments):
+        return _core_moments.combine_moments(items)
+    mod = type(first).__module__
+    if mod.startswith("pandas"):
+        import pandas as pd
+
+        index = items[0].index
+        for p in items[1:]:
+            index = index.union(p.index, sort=False)
+        sets = []
+        for p in items:
+            missing = [f for f in FIELDS if f not in p.columns and f != "n_censored"]
+            if missing:
+                raise ValueError(f"combine_moments needs moments() results; columns {missing} are missing")
+            q = p.reindex(index)
+            sets.append(_moments_from_columns({f: q[f].to_numpy() if f in q else None for f in FIELDS}))
+        merged = _core_moments.combine_moments(sets)
+        return pd.DataFrame(merged.to_dict(), index=index)
+    if mod.startswith("xarray"):
+        import xarray as xr
+
+        aligned = xr.align(*items, join="outer")
+        sets = [_moments_from_columns({f: ds[f].to_numpy() if f in ds else None for f in FIELDS})
+                for ds in aligned]
+        merged = _core_moments.combine_moments(sets)
+        template = aligned[0]
+        return xr.Dataset({k: (template["n"].dims, v) for k, v in merged.to_dict().items()},
+                          coords=template.coords)
+    raise TypeError(f"combine_moments takes LogMoments, DataFrames or Datasets, not {type(first).__name__}")
+
+
+def _moments_from_columns(cols: dict[str, Any]) -> LogMoments:
+    n = cols["n"]
+    shape = np.shape(n)
+    out = {}
+    for f in FIELDS:
+        v = cols.get(f)
+        if v is None:
+            v = np.zeros(shape)
+        v = np.asarray(v, dtype=np.float64)
+        if f in ("n", "n_missing", "n_nonpositive", "n_censored"):
+            out[f] = np.nan_to_num(v, nan=0.0).astype(np.int64)
+        else:
+            out[f] = v
+    return LogMoments(**out)

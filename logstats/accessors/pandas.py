@@ -1,0 +1,300 @@
+"""The ``.logstats`` accessor on ``pandas.Series`` and ``pandas.DataFrame``.
+
+Thin by design: arguments are normalised, value columns become float arrays and group keys integer
+codes (``_labels``), the shared engine or a statistics function computes, and the result is rewrapped
+with the group labels. A Series is handled as a one-column frame, so both share one implementation.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Hashable
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from logstats.accessors._engine import INT_FIELDS, finalize, stacked_moments
+from logstats.accessors._labels import Groups, column_values, factorize_keys, resolve_keys, value_columns
+from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
+
+__all__ = ["LogstatsFrameAccessor", "LogstatsSeriesAccessor"]
+
+_DEFAULT_NAME = "value"
+
+
+def _where(col: Hashable) -> str:
+    return describe_where(column=str(col))
+
+
+def tidy_frame(fields: dict[str, np.ndarray], index: pd.Index) -> pd.DataFrame:
+    out = {}
+    for k, v in fields.items():
+        arr = np.asarray(v)
+        if k in INT_FIELDS and arr.dtype.kind == "f" and np.isfinite(arr).all():
+            arr = arr.astype(np.int64)
+        out[k] = arr
+    return pd.DataFrame(out, index=index)
+
+
+class _PandasBase:
+    _obj: Any
+
+    # ------------------------------------------------------------------ plumbing
+    def _frame(self) -> pd.DataFrame:
+        raise NotImplementedError
+
+    def _is_series(self) -> bool:
+        return isinstance(self._obj, pd.Series)
+
+    def _setup(self, by: Any, columns: Any, observed: bool, dropna: bool, sort: bool
+               ) -> tuple[pd.DataFrame, list[Hashable], Groups | None]:
+        df = self._frame()
+        if by is None:
+            cols = value_columns(df, columns)
+            return df, cols, None
+        keys = resolve_keys(self._obj, by)
+        exclude = [] if self._is_series() else [k.name for k in keys if k.name in df.columns]
+        cols = value_columns(df, columns, exclude=exclude)
+        groups = factorize_keys(keys, observed=observed, dropna=dropna, sort=sort)
+        return df, cols, groups
+
+    def _moment_reduce(self, kind: str, by: Any, columns: Any, *, skipna: bool, nonpositive: str,
+                       observed: bool, dropna: bool, sort: bool, params: dict[str, Any] | None = None
+                       ) -> tuple[list[tuple[Hashable, np.ndarray]], tuple[str, ...], Groups | None]:
+        check_nonpositive(nonpositive)
+        df, cols, groups = self._setup(by, columns, observed, dropna, sort)
+        results = []
+        names: tuple[str, ...] = ()
+        for col in cols:
+            x = column_values(df[col], col)
+            if groups is None:
+                st = stacked_moments(x, nred=1, where=_where(col))
+                labels = None
+            else:
+                st = stacked_moments(x, nred=1, codes=groups.codes, ngroups=groups.ngroups,
+                                     where=_where(col))
+                labels = groups.labels
+            arr, names = finalize(st, kind=kind, skipna=skipna, nonpositive=nonpositive,
+                                  where=_where(col), labels=labels, params=params)
+            results.append((col, arr))
+        return results, names, groups
+
+    def _per_column(self, fn: Callable[..., dict[str, np.ndarray]], by: Any, columns: Any, *,
+                    observed: bool = True, dropna: bool = True, sort: bool = True,
+                    extra: Callable[[pd.DataFrame, Groups | None], dict[str, Any]] | None = None,
+                    **kw: Any) -> pd.DataFrame | pd.Series:
+        """Run a statistics function ``fn(values, codes, ngroups, **kw)`` column by column; tidy result."""
+        df, cols, groups = self._setup(by, columns, observed, dropna, sort)
+        n = len(df)
+        codes = groups.codes if groups is not None else np.zeros(n, dtype=np.intp)
+        ngroups = groups.ngroups if groups is not None else 1
+        more = extra(df, groups) if extra is not None else {}
+        frames = []
+        for col in cols:
+            fields = fn(column_values(df[col], col), codes, ngroups, where=_where(col),
+                        labels=groups.labels if groups is not None else None, **more, **kw)
+            frames.append((col, fields))
+        return self._tidy(frames, groups)
+
+    def _tidy(self, results: list[tuple[Hashable, dict[str, np.ndarray]]], groups: Groups | None
+              ) -> pd.DataFrame | pd.Series:
+        if groups is None:
+            rows = {col: {k: np.asarray(v).reshape(-1)[0] for k, v in f.items()} for col, f in results}
+            out = pd.DataFrame.from_dict(rows, orient="index")
+            out.index.name = "variable"
+            for k in out.columns:
+                if k in INT_FIELDS:
+                    out[k] = _maybe_int(out[k])
+            if self._is_series():
+                s = out.iloc[0]
+                s.name = self._obj.name
+                return s
+            return out
+        frames = [tidy_frame(f, groups.index) for _, f in results]
+        if len(frames) == 1:
+            return frames[0]
+        return pd.concat(frames, keys=[c for c, _ in results], names=["variable"]).pipe(_variable_last)
+
+    def _stacked_to_tidy(self, results: list[tuple[Hashable, np.ndarray]], names: tuple[str, ...],
+                         groups: Groups | None) -> pd.DataFrame | pd.Series:
+        return self._tidy([(c, {k: a[..., i] for i, k in enumerate(names)}) for c, a in results], groups)
+
+    def _single(self, kind: str, by: Any, columns: Any, **kw: Any) -> Any:
+        results, names, groups = self._moment_reduce(kind, by, columns, **kw)
+        if groups is None:
+            values = {c: float(a[0]) for c, a in results}
+            if self._is_series():
+                return next(iter(values.values()))
+            s = pd.Series(values, name=kind)
+            s.index.name = "variable"
+            return s
+        data = {c: a[:, 0] for c, a in results}
+        if self._is_series():
+            return pd.Series(next(iter(data.values())), index=groups.index, name=self._obj.name)
+        out = pd.DataFrame(data, index=groups.index)
+        out.columns.name = None
+        return out
+
+    # ------------------------------------------------------------------ public methods
+    def gmean(self, by: Any = None, *, columns: Any = None, skipna: bool = True,
+              nonpositive: str = "raise", observed: bool = True, dropna: bool = True,
+              sort: bool = True) -> Any:
+        """Geometric mean ``exp(mean(ln x))``, per column and per group of ``by``.
+
+        Parameters
+        ----------
+        by : column name, list of names, or aligned Series, optional
+            Group keys, as in ``DataFrame.groupby`` (``observed``, ``dropna``, ``sort`` likewise).
+        columns : name or list, optional
+            Value columns; default all numeric, non-boolean columns not used in ``by``.
+        skipna : bool, default True
+            Skip missing values (counted in ``summary()``); False makes a group with any NaN.
+        nonpositive : {"raise", "drop", "nan"}
+            Zeros, negatives and ``-inf``: refuse, exclude (counted), or make the group's result NaN.
+
+        Returns
+        -------
+        float (Series without ``by``), Series (DataFrame without ``by``, or Series with ``by``),
+        or DataFrame (groups x columns).
+
+        Examples
+        --------
+        >>> import pandas as pd, logstats
+        >>> pd.Series([1.0, 10.0, 100.0]).logstats.gmean()
+        10.000000000000002
+        """
+        return self._single("gmean", by, columns, skipna=skipna, nonpositive=nonpositive,
+                            observed=observed, dropna=dropna, sort=sort)
+
+    def gsd(self, by: Any = None, *, columns: Any = None, ddof: float = 1, skipna: bool = True,
+            nonpositive: str = "raise", observed: bool = True, dropna: bool = True,
+            sort: bool = True) -> Any:
+        """Geometric standard deviation ``exp(sd(ln x))`` with ``ddof=1`` (as ``scipy.stats.gstd``).
+
+        Same arguments and shapes as :meth:`gmean`; dimensionless, at least 1.
+        """
+        return self._single("gsd", by, columns, skipna=skipna, nonpositive=nonpositive,
+                            observed=observed, dropna=dropna, sort=sort, params={"ddof": ddof})
+
+    def gcv(self, by: Any = None, *, columns: Any = None, ddof: float = 1, skipna: bool = True,
+            nonpositive: str = "raise", observed: bool = True, dropna: bool = True,
+            sort: bool = True) -> Any:
+        """Geometric coefficient of variation ``sqrt(exp(s²) − 1)``, s the SD of ln x with ``ddof=1``."""
+        return self._single("gcv", by, columns, skipna=skipna, nonpositive=nonpositive,
+                            observed=observed, dropna=dropna, sort=sort, params={"ddof": ddof})
+
+    def moments(self, by: Any = None, *, columns: Any = None, skipna: bool = True,
+                nonpositive: str = "raise", observed: bool = True, dropna: bool = True,
+                sort: bool = True) -> Any:
+        """The sufficient statistics of the logs: ``n, mean_log, m2_log, n_missing, n_nonpositive, n_censored``.
+
+        ``m2_log`` is the sum of squared deviations of ln x. Results of the same shape merge exactly
+        with :func:`logstats.combine_moments` (e.g. tables of several plates summarised separately).
+        """
+        results, names, groups = self._moment_reduce(
+            "moments", by, columns, skipna=skipna, nonpositive=nonpositive, observed=observed,
+            dropna=dropna, sort=sort)
+        return self._stacked_to_tidy(results, names, groups)
+
+    def summary(self, by: Any = None, *, columns: Any = None, confidence_level: float = 0.95,
+                ddof: float = 1, skipna: bool = True, nonpositive: str = "raise", linear: bool = False,
+                observed: bool = True, dropna: bool = True, sort: bool = True) -> Any:
+        """Log-scale summary: ``n, n_missing, n_nonpositive, gmean, gsd, gcv, ci_low, ci_high, ci_factor``.
+
+        ``ci_low``/``ci_high`` is the t interval of the geometric mean, ``exp(ȳ ± t·s/√n)``, and
+        ``ci_factor`` its ×/÷ half-width; ``gsd``/``gcv`` use ``ddof`` (default 1). With
+        ``linear=True`` the linear-scale ``median``, ``mean`` and ``sd`` (ddof) of the same values are
+        added (the median costs a sort, so it is off by default).
+
+        Examples
+        --------
+        >>> import pandas as pd, logstats
+        >>> df = pd.DataFrame({"arm": ["a", "a", "b", "b"], "x": [1.0, 4.0, 2.0, 8.0]})
+        >>> df.logstats.summary(by="arm")[["n", "gmean", "gsd"]].round(3)
+             n  gmean    gsd
+        arm
+        a    2    2.0  2.665
+        b    2    4.0  2.665
+        """
+        results, names, groups = self._moment_reduce(
+            "summary", by, columns, skipna=skipna, nonpositive=nonpositive, observed=observed,
+            dropna=dropna, sort=sort, params={"confidence_level": confidence_level, "ddof": ddof})
+        out = self._stacked_to_tidy(results, names, groups)
+        if linear:
+            from logstats.stats.estimate import linear_fields
+
+            lin = self._per_column(linear_fields, by, columns, observed=observed, dropna=dropna,
+                                   sort=sort, ddof=ddof, skipna=skipna, nonpositive=nonpositive)
+            if isinstance(out, pd.Series):
+                out = pd.concat([out, lin])
+            else:
+                out = out.join(lin)
+        return out
+
+    def log(self, *, base: Any = "e", columns: Any = None, nonpositive: str = "raise") -> Any:
+        """Same-shape log transform (base ``"e"``, 2 or 10); other columns pass through unchanged.
+
+        ``nonpositive="drop"`` or ``"nan"`` put NaN in place of zeros and negatives; ``"raise"``
+        refuses them, naming the column and the count. The input is never modified.
+        """
+        check_nonpositive(nonpositive)
+        if self._is_series():
+            name = self._obj.name if self._obj.name is not None else _DEFAULT_NAME
+            y = log_values(column_values(self._obj, name), base=base, nonpositive=nonpositive,
+                           where=_where(name))
+            return pd.Series(y, index=self._obj.index, name=self._obj.name)
+        df = self._obj
+        out = df.copy()
+        for col in value_columns(df, columns):
+            out[col] = log_values(column_values(df[col], col), base=base, nonpositive=nonpositive,
+                                  where=_where(col))
+        return out
+
+    def exp(self, *, base: Any = "e", columns: Any = None) -> Any:
+        """Exact inverse of :meth:`log`: ``base ** x`` for the chosen columns."""
+        if self._is_series():
+            name = self._obj.name if self._obj.name is not None else _DEFAULT_NAME
+            return pd.Series(exp_values(column_values(self._obj, name), base=base, where=_where(name)),
+                             index=self._obj.index, name=self._obj.name)
+        df = self._obj
+        out = df.copy()
+        for col in value_columns(df, columns):
+            out[col] = exp_values(column_values(df[col], col), base=base, where=_where(col))
+        return out
+
+
+def _maybe_int(s: pd.Series) -> pd.Series:
+    vals = s.to_numpy(dtype=np.float64)
+    return s.astype(np.int64) if np.isfinite(vals).all() else s
+
+
+def _variable_last(df: pd.DataFrame) -> pd.DataFrame:
+    n = df.index.nlevels
+    return df.reorder_levels(list(range(1, n)) + [0])
+
+
+@pd.api.extensions.register_dataframe_accessor("logstats")
+class LogstatsFrameAccessor(_PandasBase):
+    """Log-scale statistics on a DataFrame: ``df.logstats.summary(by="condition")``."""
+
+    def __init__(self, obj: pd.DataFrame) -> None:
+        if not isinstance(obj, pd.DataFrame):
+            raise AttributeError("the logstats DataFrame accessor needs a DataFrame")
+        self._obj = obj
+
+    def _frame(self) -> pd.DataFrame:
+        return self._obj
+
+
+@pd.api.extensions.register_series_accessor("logstats")
+class LogstatsSeriesAccessor(_PandasBase):
+    """Log-scale statistics on a Series: ``s.logstats.gmean()``, ``s.logstats.summary(by=keys)``."""
+
+    def __init__(self, obj: pd.Series) -> None:
+        if not isinstance(obj, pd.Series):
+            raise AttributeError("the logstats Series accessor needs a Series")
+        self._obj = obj
+
+    def _frame(self) -> pd.DataFrame:
+        name = self._obj.name if self._obj.name is not None else _DEFAULT_NAME
+        return pd.DataFrame({name: self._obj}, index=self._obj.index)

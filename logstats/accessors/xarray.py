@@ -1,0 +1,269 @@
+"""The ``.logstats`` accessor on ``xarray.DataArray`` and ``xarray.Dataset``.
+
+One implementation: a DataArray goes through the same per-variable path as each data variable of a
+Dataset. Reduced dims are moved last, the data (numpy or dask) go to the shared engine, and results
+are rewrapped with the remaining coords. Dask-backed variables stay lazy.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Callable, Hashable, Sequence
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import xarray as xr
+
+from logstats.accessors._engine import INT_FIELDS, finalize, is_dask, stacked_moments
+from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
+
+__all__ = ["LogstatsArrayAccessor", "LogstatsDatasetAccessor"]
+
+#: Result fields that carry the data's units (the others are counts or dimensionless).
+UNIT_FIELDS = frozenset({"gmean", "ci_low", "ci_high", "median", "mean", "sd", "estimate"})
+_LOG_UNITS = re.compile(r"^log(?:_(?P<b>e|2|10))?\((?P<u>.*)\)$")
+
+
+def _where(name: Hashable) -> str:
+    return describe_where(column=str(name)).replace("column", "variable")
+
+
+def _is_value(da: xr.DataArray) -> bool:
+    return da.dtype.kind in "fiu"
+
+
+def _check_value(da: xr.DataArray, name: Hashable) -> None:
+    if not _is_value(da):
+        raise TypeError(
+            f"variable {name!r} has dtype {da.dtype}, which is not numeric; logstats needs positive numbers"
+        )
+
+
+class Plan:
+    """Which dims are reduced and, with ``by``, the group codes along the one reduced dim."""
+
+    def __init__(self, da: xr.DataArray, dim: Any, by: Hashable | None) -> None:
+        if by is not None:
+            if by not in da.coords:
+                raise KeyError(f"by={by!r} is not a coordinate; there are {list(da.coords)!r}")
+            coord = da.coords[by]
+            if coord.ndim != 1:
+                raise ValueError(f"by={by!r} must be a 1-D coordinate along one dim; it has dims {coord.dims}")
+            cdim = coord.dims[0]
+            if dim is None:
+                dim = cdim
+            dims = [dim] if isinstance(dim, str) else list(dim)
+            if dims != [cdim]:
+                raise ValueError(f"by={by!r} lies along {cdim!r}; pass dim={cdim!r} (got dim={dim!r})")
+            codes, uniques = pd.factorize(coord.to_numpy(), sort=True, use_na_sentinel=True)
+            self.codes: np.ndarray | None = np.asarray(codes, dtype=np.intp)
+            self.labels: list[Any] | None = list(uniques)
+            self.group_index = pd.Index(uniques, name=by)
+            self.n_unkeyed = int((codes < 0).sum())
+        else:
+            if dim is None:
+                dims = list(da.dims)
+            else:
+                dims = [dim] if isinstance(dim, str) else list(dim)
+            missing = [d for d in dims if d not in da.dims]
+            if missing:
+                raise ValueError(f"dim {missing!r} not found; the data has dims {list(da.dims)!r}")
+            self.codes = None
+            self.labels = None
+            self.group_index = None
+            self.n_unkeyed = 0
+        self.by = by
+        self.reduced = dims
+        self.kept = [d for d in da.dims if d not in dims]
+
+    def out_dims(self) -> list[Hashable]:
+        return self.kept + ([self.by] if self.by is not None else [])
+
+    def coords(self, da: xr.DataArray) -> dict[Hashable, Any]:
+        out: dict[Hashable, Any] = {}
+        for name, c in da.coords.items():
+            if all(d in self.kept for d in c.dims) and name != self.by:
+                out[name] = c
+        if self.by is not None:
+            out[self.by] = self.group_index
+        return out
+
+
+def _reduce_array(da: xr.DataArray, name: Hashable, kind: str, dim: Any, by: Hashable | None, *,
+                  skipna: bool, nonpositive: str, keep_attrs: bool, params: dict[str, Any] | None
+                  ) -> xr.Dataset:
+    """One variable through the engine: a Dataset with one variable per result field."""
+    _check_value(da, name)
+    check_nonpositive(nonpositive)
+    plan = Plan(da, dim, by)
+    data = da.transpose(*plan.kept, *plan.reduced).data
+    st = stacked_moments(data, nred=len(plan.reduced), codes=plan.codes,
+                         ngroups=len(plan.labels) if plan.labels is not None else None, where=_where(name))
+    arr, names = finalize(st, kind=kind, skipna=skipna, nonpositive=nonpositive, where=_where(name),
+                          labels=plan.labels, params=params)
+    return _wrap(arr, names, plan, da, keep_attrs)
+
+
+def _wrap(arr: Any, names: Sequence[str], plan: Plan, da: xr.DataArray, keep_attrs: bool) -> xr.Dataset:
+    coords = plan.coords(da)
+    dims = plan.out_dims()
+    out = {}
+    for i, k in enumerate(names):
+        v = arr[..., i]
+        if k in INT_FIELDS:
+            v = v.astype(np.int64)
+        attrs = {}
+        if keep_attrs and k in UNIT_FIELDS:
+            attrs = dict(da.attrs)
+        out[k] = xr.DataArray(v, dims=dims, coords=coords, attrs=attrs)
+    return xr.Dataset(out)
+
+
+class _XarrayBase:
+    _obj: Any
+
+    def _variables(self) -> list[tuple[Hashable, xr.DataArray]]:
+        raise NotImplementedError
+
+    def _is_array(self) -> bool:
+        return isinstance(self._obj, xr.DataArray)
+
+    def _each(self, fn: Callable[[xr.DataArray, Hashable], xr.Dataset]) -> list[tuple[Hashable, xr.Dataset]]:
+        return [(name, fn(da, name)) for name, da in self._variables()]
+
+    def _tidy(self, parts: list[tuple[Hashable, xr.Dataset]]) -> xr.Dataset:
+        if len(parts) == 1:
+            return parts[0][1]
+        return xr.concat([p for _, p in parts], dim=pd.Index([n for n, _ in parts], name="variable", dtype=object),
+                         coords="minimal", compat="override", join="outer")
+
+    def _single(self, kind: str, dim: Any, by: Any, keep_attrs: bool, **kw: Any) -> Any:
+        parts = self._each(lambda da, name: _reduce_array(da, name, kind, dim, by, keep_attrs=keep_attrs,
+                                                          **kw))
+        if self._is_array():
+            out = parts[0][1][kind]
+            out.name = self._obj.name
+            return out
+        return xr.Dataset({name: ds[kind] for name, ds in parts})
+
+    def _fields(self, kind: str, dim: Any, by: Any, keep_attrs: bool, **kw: Any) -> xr.Dataset:
+        return self._tidy(self._each(
+            lambda da, name: _reduce_array(da, name, kind, dim, by, keep_attrs=keep_attrs, **kw)))
+
+    # ------------------------------------------------------------------ public methods
+    def gmean(self, dim: Any = None, *, by: Hashable | None = None, skipna: bool = True,
+              nonpositive: str = "raise", keep_attrs: bool = True) -> Any:
+        """Geometric mean along ``dim`` (name, list, or None for all), per group of coordinate ``by``.
+
+        Keeps ``attrs`` (units) with ``keep_attrs=True``. Lazy for dask-backed data.
+
+        Examples
+        --------
+        >>> import xarray as xr, logstats
+        >>> xr.DataArray([1.0, 10.0, 100.0], dims="cell").logstats.gmean("cell").item()
+        10.000000000000002
+        """
+        return self._single("gmean", dim, by, keep_attrs, skipna=skipna, nonpositive=nonpositive,
+                            params=None)
+
+    def gsd(self, dim: Any = None, *, by: Hashable | None = None, ddof: float = 1, skipna: bool = True,
+            nonpositive: str = "raise", keep_attrs: bool = True) -> Any:
+        """Geometric standard deviation ``exp(sd(ln x))`` along ``dim``, ``ddof=1``; dimensionless."""
+        return self._single("gsd", dim, by, keep_attrs, skipna=skipna, nonpositive=nonpositive,
+                            params={"ddof": ddof})
+
+    def gcv(self, dim: Any = None, *, by: Hashable | None = None, ddof: float = 1, skipna: bool = True,
+            nonpositive: str = "raise", keep_attrs: bool = True) -> Any:
+        """Geometric coefficient of variation ``sqrt(exp(s²) − 1)`` along ``dim``, ``ddof=1``."""
+        return self._single("gcv", dim, by, keep_attrs, skipna=skipna, nonpositive=nonpositive,
+                            params={"ddof": ddof})
+
+    def moments(self, dim: Any = None, *, by: Hashable | None = None, skipna: bool = True,
+                nonpositive: str = "raise") -> xr.Dataset:
+        """Sufficient statistics of the logs along ``dim`` (``n, mean_log, m2_log`` and the counts)."""
+        return self._fields("moments", dim, by, False, skipna=skipna, nonpositive=nonpositive, params=None)
+
+    def summary(self, dim: Any = None, *, by: Hashable | None = None, confidence_level: float = 0.95,
+                ddof: float = 1, skipna: bool = True, nonpositive: str = "raise",
+                keep_attrs: bool = True) -> xr.Dataset:
+        """Log-scale summary along ``dim``: ``n, n_missing, n_nonpositive, gmean, gsd, gcv, ci_low,
+        ci_high, ci_factor`` (t interval of the geometric mean; ``ddof=1`` for the spreads).
+
+        A Dataset with several numeric variables gains a ``variable`` dim. Lazy for dask-backed data;
+        chunks along ``dim`` are reduced separately and merged, never rechunked.
+        """
+        return self._fields("summary", dim, by, keep_attrs, skipna=skipna, nonpositive=nonpositive,
+                            params={"confidence_level": confidence_level, "ddof": ddof})
+
+    def log(self, *, base: Any = "e", nonpositive: str = "raise", keep_attrs: bool = True) -> Any:
+        """Same-shape log transform (base ``"e"``, 2 or 10); ``units`` become ``log_<base>(units)``."""
+        check_nonpositive(nonpositive)
+
+        def one(da: xr.DataArray, name: Hashable) -> xr.DataArray:
+            _check_value(da, name)
+            out = xr.apply_ufunc(log_values, da, kwargs={"base": base, "nonpositive": nonpositive,
+                                                         "where": _where(name)},
+                                 dask="parallelized", output_dtypes=[np.float64], keep_attrs=keep_attrs)
+            if keep_attrs and "units" in da.attrs:
+                out.attrs["units"] = f"log_{base}({da.attrs['units']})"
+            return out
+
+        return self._map(one)
+
+    def exp(self, *, base: Any = "e", keep_attrs: bool = True) -> Any:
+        """Exact inverse of :meth:`log`; ``units`` of the form ``log_<base>(u)`` become ``u`` again."""
+
+        def one(da: xr.DataArray, name: Hashable) -> xr.DataArray:
+            _check_value(da, name)
+            out = xr.apply_ufunc(exp_values, da, kwargs={"base": base, "where": _where(name)},
+                                 dask="parallelized", output_dtypes=[np.float64], keep_attrs=keep_attrs)
+            units = da.attrs.get("units")
+            if keep_attrs and isinstance(units, str):
+                m = _LOG_UNITS.match(units)
+                if m and (m.group("b") or "e") == str(base):
+                    out.attrs["units"] = m.group("u")
+            return out
+
+        return self._map(one)
+
+    def _map(self, fn: Callable[[xr.DataArray, Hashable], xr.DataArray]) -> Any:
+        if self._is_array():
+            return fn(self._obj, self._obj.name if self._obj.name is not None else "value")
+        ds = self._obj.copy()
+        for name, da in self._variables():
+            ds[name] = fn(da, name)
+        return ds
+
+
+@xr.register_dataarray_accessor("logstats")
+class LogstatsArrayAccessor(_XarrayBase):
+    """Log-scale statistics on a DataArray: ``da.logstats.summary(dim="cell")``."""
+
+    def __init__(self, obj: xr.DataArray) -> None:
+        self._obj = obj
+
+    def _variables(self) -> list[tuple[Hashable, xr.DataArray]]:
+        name = self._obj.name if self._obj.name is not None else "value"
+        return [(name, self._obj)]
+
+
+@xr.register_dataset_accessor("logstats")
+class LogstatsDatasetAccessor(_XarrayBase):
+    """Log-scale statistics on every numeric data variable of a Dataset."""
+
+    def __init__(self, obj: xr.Dataset) -> None:
+        self._obj = obj
+
+    def _variables(self) -> list[tuple[Hashable, xr.DataArray]]:
+        out = [(k, v) for k, v in self._obj.data_vars.items() if _is_value(v)]
+        if not out:
+            raise TypeError(f"the Dataset has no numeric data variables (it has {list(self._obj.data_vars)!r})")
+        return out
+
+
+def is_lazy(obj: xr.Dataset | xr.DataArray) -> bool:
+    """True when any variable is dask-backed (used by tests and the command line)."""
+    if isinstance(obj, xr.DataArray):
+        return is_dask(obj.data)
+    return any(is_dask(v.data) for v in obj.data_vars.values())
