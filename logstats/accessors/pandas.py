@@ -186,7 +186,7 @@ class _PandasBase:
     def moments(self, by: Any = None, *, columns: Any = None, skipna: bool = True,
                 nonpositive: str = "raise", observed: bool = True, dropna: bool = True,
                 sort: bool = True) -> Any:
-        """The sufficient statistics of the logs: ``n, mean_log, m2_log, n_missing, n_nonpositive, n_censored``.
+        """Sufficient statistics of the logs: ``n, mean_log, m2_log, n_missing, n_nonpositive, n_censored``.
 
         ``m2_log`` is the sum of squared deviations of ln x. Results of the same shape merge exactly
         with :func:`logstats.combine_moments` (e.g. tables of several plates summarised separately).

@@ -49,13 +49,15 @@ class Plan:
                 raise KeyError(f"by={by!r} is not a coordinate; there are {list(da.coords)!r}")
             coord = da.coords[by]
             if coord.ndim != 1:
-                raise ValueError(f"by={by!r} must be a 1-D coordinate along one dim; it has dims {coord.dims}")
+                raise ValueError(f"by={by!r} must be a 1-D coordinate along one dim; it has {coord.dims}")
             cdim = coord.dims[0]
             if dim is None:
                 dim = cdim
             dims = [dim] if isinstance(dim, str) else list(dim)
             if dims != [cdim]:
                 raise ValueError(f"by={by!r} lies along {cdim!r}; pass dim={cdim!r} (got dim={dim!r})")
+            # group labels must be known to lay out the result: a dask-backed coordinate is loaded here
+            # (it is one label per position, small next to the data, which stay lazy)
             codes, uniques = pd.factorize(coord.to_numpy(), sort=True, use_na_sentinel=True)
             self.codes: np.ndarray | None = np.asarray(codes, dtype=np.intp)
             self.labels: list[Any] | None = list(uniques)
@@ -135,7 +137,8 @@ class _XarrayBase:
     def _tidy(self, parts: list[tuple[Hashable, xr.Dataset]]) -> xr.Dataset:
         if len(parts) == 1:
             return parts[0][1]
-        return xr.concat([p for _, p in parts], dim=pd.Index([n for n, _ in parts], name="variable", dtype=object),
+        variable = pd.Index([n for n, _ in parts], name="variable", dtype=object)
+        return xr.concat([p for _, p in parts], dim=variable,
                          coords="minimal", compat="override", join="outer")
 
     def _single(self, kind: str, dim: Any, by: Any, keep_attrs: bool, **kw: Any) -> Any:
@@ -258,7 +261,8 @@ class LogstatsDatasetAccessor(_XarrayBase):
     def _variables(self) -> list[tuple[Hashable, xr.DataArray]]:
         out = [(k, v) for k, v in self._obj.data_vars.items() if _is_value(v)]
         if not out:
-            raise TypeError(f"the Dataset has no numeric data variables (it has {list(self._obj.data_vars)!r})")
+            names = list(self._obj.data_vars)
+            raise TypeError(f"the Dataset has no numeric data variables (it has {names!r})")
         return out
 
 

@@ -264,7 +264,8 @@ def reduce_moments(m: LogMoments, axis: int | Sequence[int], *, keepdims: bool =
         mean0 = (n_i * mi).sum(axis=axes, keepdims=True) / n
         dev = np.where(has, mi - mean0, 0.0)
         corr = (n_i * dev).sum(axis=axes, keepdims=True) / n
-        m2 = m2i.sum(axis=axes, keepdims=True) + (n_i * dev * dev).sum(axis=axes, keepdims=True) - n * corr * corr
+        spread = (n_i * dev * dev).sum(axis=axes, keepdims=True)
+        m2 = m2i.sum(axis=axes, keepdims=True) + spread - n * corr * corr
         mean = mean0 + corr
     m2 = np.maximum(m2, 0.0)
     mean, m2 = _empty_to_nan(n, mean, m2)

@@ -155,11 +155,11 @@ def log_values(
     effect on a same-shape transform; it is accepted for symmetry).
     """
     check_nonpositive(nonpositive)
+    factor = check_base(base)
     lv = to_logs(values, where=where)
     nbad = int(lv.nonpositive.sum())
     if nbad and nonpositive == "raise":
         raise ValueError(nonpositive_message(where, nbad))
-    factor = check_base(base)
     if factor == 1.0:
         return lv.y
     fn = np.log2 if factor == _BASES[2] else np.log10

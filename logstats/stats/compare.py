@@ -157,6 +157,13 @@ def adjust_p(p: Any, method: str | None = "holm", *, families: Any = None) -> np
     Vectorised over families: one ``lexsort`` by (family, p), then a running maximum (Holm) or a
     running minimum from the largest p (BH) restarted at each family boundary.
 
+    Examples
+    --------
+    >>> adjust_p([0.01, 0.04, 0.03], "holm")
+    array([0.03, 0.06, 0.06])
+    >>> adjust_p([0.01, 0.04, 0.03, float("nan")], "bh")
+    array([0.03, 0.04, 0.04,  nan])
+
     References
     ----------
     Holm, S. (1979). A simple sequentially rejective multiple test procedure. Scand. J. Stat. 6:65-70.
@@ -199,7 +206,7 @@ def adjust_p(p: Any, method: str | None = "holm", *, families: Any = None) -> np
     if method == "holm":
         adj = _segmented_cummax(np.minimum(1.0, (m - rank) * ps), seg)
     else:  # "bh": running minimum from the largest p of each family
-        v = np.minimum(1.0, ps * m / (rank + 1.0))
+        v = np.minimum(1.0, ps / ((rank + 1.0) / m))  # divide by i/m (exactly 1 for the largest p)
         seg_rev = (seg[-1] - seg)[::-1]
         adj = -_segmented_cummax(-v[::-1], seg_rev)[::-1]
     out.reshape(-1)[idx[order]] = np.clip(adj, 0.0, 1.0)
@@ -628,9 +635,8 @@ def fold_change_codes(
     n_cells = n_cells.reshape(shape)
     n_missing = n_missing.reshape(shape)
     n_nonpos = n_nonpos.reshape(shape)
-    for k in ("n_no_replicate",):
-        if k in extra:
-            extra[k] = extra[k].reshape(shape)
+    if "n_no_replicate" in extra:
+        extra["n_no_replicate"] = extra["n_no_replicate"].reshape(shape)
 
     # the policies act on whole levels, and through the reference on whole strata
     bad = np.zeros(shape, dtype=bool)

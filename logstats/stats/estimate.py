@@ -28,6 +28,12 @@ __all__ = [
 ]
 
 
+def _exp(a: np.ndarray) -> np.ndarray:
+    """exp without RuntimeWarnings: a bound beyond the float range is honestly inf (or 0)."""
+    with np.errstate(over="ignore", under="ignore"):
+        return np.exp(a)
+
+
 def _check_level(confidence_level: float) -> float:
     cl = float(confidence_level)
     if not 0.0 < cl < 1.0:
@@ -45,7 +51,7 @@ def t_quantile(confidence_level: float, df: np.ndarray) -> np.ndarray:
 
 def gmean(m: LogMoments) -> np.ndarray:
     """Geometric mean ``exp(mean of ln x)``; NaN for an empty group."""
-    return np.exp(np.asarray(m.mean_log, dtype=np.float64))
+    return _exp(np.asarray(m.mean_log, dtype=np.float64))
 
 
 def sd_log(m: LogMoments, ddof: float = 1) -> np.ndarray:
@@ -58,7 +64,7 @@ def gsd(m: LogMoments, ddof: float = 1) -> np.ndarray:
 
     Dimensionless and at least 1. NaN where ``n <= ddof``.
     """
-    return np.exp(sd_log(m, ddof))
+    return _exp(sd_log(m, ddof))
 
 
 def gcv(m: LogMoments, ddof: float = 1) -> np.ndarray:
@@ -80,7 +86,7 @@ def ci_gmean(m: LogMoments, confidence_level: float = 0.95) -> tuple[np.ndarray,
     n = np.asarray(m.n, dtype=np.float64)
     half = t_quantile(confidence_level, n - 1) * sd_log(m, 1) / np.sqrt(np.where(n > 0, n, np.nan))
     mu = np.asarray(m.mean_log, dtype=np.float64)
-    return np.exp(mu - half), np.exp(mu + half), np.exp(half)
+    return _exp(mu - half), _exp(mu + half), _exp(half)
 
 
 def dispersion_interval(m: LogMoments, z: float = 1.0, ddof: float = 1) -> tuple[np.ndarray, np.ndarray]:
@@ -90,7 +96,7 @@ def dispersion_interval(m: LogMoments, z: float = 1.0, ddof: float = 1) -> tuple
     """
     mu = np.asarray(m.mean_log, dtype=np.float64)
     half = float(z) * sd_log(m, ddof)
-    return np.exp(mu - half), np.exp(mu + half)
+    return _exp(mu - half), _exp(mu + half)
 
 
 def prediction_interval(m: LogMoments, confidence_level: float = 0.95) -> tuple[np.ndarray, np.ndarray]:
@@ -99,7 +105,7 @@ def prediction_interval(m: LogMoments, confidence_level: float = 0.95) -> tuple[
     with np.errstate(divide="ignore", invalid="ignore"):
         half = t_quantile(confidence_level, n - 1) * sd_log(m, 1) * np.sqrt(1.0 + 1.0 / n)
     mu = np.asarray(m.mean_log, dtype=np.float64)
-    return np.exp(mu - half), np.exp(mu + half)
+    return _exp(mu - half), _exp(mu + half)
 
 
 def summary_fields(m: LogMoments, confidence_level: float = 0.95, ddof: float = 1) -> dict[str, np.ndarray]:
