@@ -10,6 +10,7 @@ from logstats.accessors import xarray as _xarray_accessor  # noqa: F401
 from logstats.accessors.arrays import combine_moments, exp, gcv, gmean, gsd, log, moments, summary
 from logstats.core.moments import LogMoments
 from logstats.core.transform import LogstatsWarning
+from logstats.stats.compare import adjust_p
 
 __version__ = "0.1.0"
 
@@ -17,6 +18,7 @@ __all__ = [
     "LogMoments",
     "LogstatsWarning",
     "__version__",
+    "adjust_p",
     "combine_moments",
     "exp",
     "gcv",

@@ -46,14 +46,15 @@ class _PandasBase:
     def _is_series(self) -> bool:
         return isinstance(self._obj, pd.Series)
 
-    def _setup(self, by: Any, columns: Any, observed: bool, dropna: bool, sort: bool
-               ) -> tuple[pd.DataFrame, list[Hashable], Groups | None]:
+    def _setup(self, by: Any, columns: Any, observed: bool, dropna: bool, sort: bool,
+               other_keys: tuple[Any, ...] = ()) -> tuple[pd.DataFrame, list[Hashable], Groups | None]:
         df = self._frame()
+        others = [k for k in other_keys if isinstance(k, str) and k in df.columns]
         if by is None:
-            cols = value_columns(df, columns)
+            cols = value_columns(df, columns, exclude=others)
             return df, cols, None
         keys = resolve_keys(self._obj, by)
-        exclude = [] if self._is_series() else [k.name for k in keys if k.name in df.columns]
+        exclude = [] if self._is_series() else [k.name for k in keys if k.name in df.columns] + others
         cols = value_columns(df, columns, exclude=exclude)
         groups = factorize_keys(keys, observed=observed, dropna=dropna, sort=sort)
         return df, cols, groups
@@ -230,6 +231,100 @@ class _PandasBase:
             else:
                 out = out.join(lin)
         return out
+
+    def fold_change(self, by: Any, reference: Any, *, columns: Any = None, replicate: Any = None,
+                    paired: bool = False, within: Any = None, equal_var: bool = False,
+                    confidence_level: float = 0.95, adjust: str | None = "holm",
+                    equivalence: tuple[float, float] | None = None, equivalence_alpha: float = 0.05,
+                    skipna: bool = True, nonpositive: str = "raise", observed: bool = True,
+                    dropna: bool = True) -> pd.DataFrame:
+        """Ratio of geometric means of every level of ``by`` against ``reference``, with t interval.
+
+        One row per (``within`` stratum, level other than the reference[, value column]): ``ratio``
+        (level / reference), ``ci_low``, ``ci_high`` (Welch's t on the logs, Student's with
+        ``equal_var=True``), ``p_value``, ``p_adjusted`` (``adjust="holm"`` or ``"bh"`` across the
+        levels within each column and stratum; absent with ``adjust=None``), ``n``, ``n_reference``,
+        then ``log2_ratio``, ``statistic``, ``df``, the cell counts and, with ``equivalence=(low,
+        high)``, ``equivalence_p`` and ``equivalent`` (two one-sided tests at ``equivalence_alpha``).
+
+        Without ``replicate`` every value (cell) is a unit, which treats cells as independent and
+        overstates the evidence when cells share a well, plate or day. With ``replicate=`` (a column
+        or aligned Series) each replicate contributes one value, the mean of its logs; ``n`` and
+        ``n_reference`` then count replicates and ``n_cells``/``n_cells_reference`` the values
+        (Lord et al. 2020). ``paired=True`` pairs a level's replicate with the reference replicate of
+        the same label and tests the differences (unmatched ones are counted in ``n_unpaired``).
+
+        Examples
+        --------
+        >>> import pandas as pd, logstats
+        >>> df = pd.DataFrame({"arm": ["ctl"] * 3 + ["trt"] * 3, "x": [1.0, 2.0, 4.0, 2.0, 4.0, 8.0]})
+        >>> df.logstats.fold_change(by="arm", reference="ctl")["ratio"].round(6).tolist()
+        [2.0]
+        """
+        from logstats.stats.compare import fold_change_codes
+
+        check_nonpositive(nonpositive)
+        if by is None:
+            raise ValueError("fold_change needs by= (the column whose levels are compared)")
+        others = tuple(k for key in (replicate, within) if key is not None
+                       for k in (key if isinstance(key, list) else [key]))
+        df, cols, groups = self._setup(by, columns, observed, dropna, sort=True, other_keys=others)
+        assert groups is not None
+        if len(groups.names) != 1:
+            raise ValueError("fold_change takes one by= key; use within= for further stratification")
+        levels = groups.labels
+        if reference not in levels:
+            raise ValueError(f"reference={reference!r} is not a level of {groups.names[0]!r}; "
+                             f"the levels are {levels!r}")
+        ref = levels.index(reference)
+        rep_codes = n_rep = None
+        if replicate is not None:
+            rk = resolve_keys(self._obj, replicate)
+            rg = factorize_keys(rk, dropna=True, sort=True)
+            rep_codes, n_rep = rg.codes, rg.ngroups
+        elif paired:
+            raise ValueError("paired=True needs replicate= (the label shared by paired replicates)")
+        strat_codes, n_strata, strata_index = None, 1, None
+        if within is not None:
+            sg = factorize_keys(resolve_keys(self._obj, within), observed=observed, dropna=dropna,
+                                sort=True)
+            strat_codes, n_strata, strata_index = sg.codes, sg.ngroups, sg.index
+        frames = []
+        keep = [i for i in range(len(levels)) if i != ref]
+        for col in cols:
+            res = fold_change_codes(
+                column_values(df[col], col), groups.codes, groups.ngroups, ref,
+                replicate_codes=rep_codes, n_replicates=n_rep, paired=paired,
+                stratum_codes=strat_codes, n_strata=n_strata, equal_var=equal_var,
+                confidence_level=confidence_level, adjust=adjust, equivalence=equivalence,
+                equivalence_alpha=equivalence_alpha,
+                nonpositive="drop" if nonpositive == "raise" else nonpositive, skipna=skipna,
+                where=_where(col))
+            if nonpositive == "raise" and np.asarray(res["n_nonpositive"]).sum():
+                counts = np.asarray(res["n_nonpositive"]).sum(axis=0)
+                from logstats.core.transform import nonpositive_message
+
+                raise ValueError(nonpositive_message(
+                    _where(col), int(counts.sum()), [levels[i] for i in np.flatnonzero(counts)]))
+            fields = {k: np.asarray(v)[:, keep].reshape(-1) for k, v in res.items() if k != "log_ratio"}
+            fields["unit"] = np.full(len(keep) * n_strata, "replicate" if replicate is not None else "value")
+            level_index = groups.index.take(keep)
+            if strata_index is None:
+                index = level_index
+            else:
+                parts = [strata_index.get_level_values(i).repeat(len(keep))
+                         for i in range(strata_index.nlevels)]
+                index = pd.MultiIndex.from_arrays(
+                    parts + [np.tile(np.asarray(level_index, dtype=object), n_strata)],
+                    names=list(strata_index.names) + [groups.names[0]])
+            frames.append((col, fields, index))
+        out = [tidy_frame(f, idx) for _, f, idx in frames]
+        if "equivalent" in out[0]:
+            for o in out:
+                o["equivalent"] = o["equivalent"].astype(bool)
+        if len(out) == 1:
+            return out[0]
+        return pd.concat(out, keys=[c for c, _, _ in frames], names=["variable"]).pipe(_variable_last)
 
     def log(self, *, base: Any = "e", columns: Any = None, nonpositive: str = "raise") -> Any:
         """Same-shape log transform (base ``"e"``, 2 or 10); other columns pass through unchanged.

@@ -199,6 +199,73 @@ class _XarrayBase:
         return self._fields("summary", dim, by, keep_attrs, skipna=skipna, nonpositive=nonpositive,
                             params={"confidence_level": confidence_level, "ddof": ddof})
 
+    def fold_change(self, dim: Any = None, *, by: Hashable, reference: Any, replicate: Hashable | None = None,
+                    paired: bool = False, equal_var: bool = False, confidence_level: float = 0.95,
+                    adjust: str | None = "holm", equivalence: tuple[float, float] | None = None,
+                    equivalence_alpha: float = 0.05, skipna: bool = True,
+                    nonpositive: str = "raise") -> xr.Dataset:
+        """Ratio of geometric means of each level of coordinate ``by`` against ``reference`` along ``dim``.
+
+        The same statistics and columns as the pandas ``fold_change`` (Welch's t on the logs,
+        replicate means with ``replicate=`` a coordinate along ``dim``, paired replicates, Holm/BH,
+        two one-sided tests), computed separately at every position of the other dims, which are
+        kept; the result has a dim named ``by`` holding the non-reference levels. Dask-backed data
+        are loaded one variable at a time (the test needs every value of a group together).
+        """
+        from logstats.stats.compare import fold_change_codes
+
+        check_nonpositive(nonpositive)
+
+        def one(da: xr.DataArray, name: Hashable) -> xr.Dataset:
+            _check_value(da, name)
+            plan = Plan(da, dim, by)
+            assert plan.labels is not None and plan.codes is not None
+            if reference not in plan.labels:
+                raise ValueError(f"reference={reference!r} is not a level of {by!r}; "
+                                 f"the levels are {plan.labels!r}")
+            ref = plan.labels.index(reference)
+            rep_codes = n_rep = None
+            if replicate is not None:
+                if replicate not in da.coords or da.coords[replicate].dims != (plan.reduced[0],):
+                    along = plan.reduced[0]
+                    raise ValueError(f"replicate={replicate!r} must be a coordinate along {along!r}")
+                rc, ru = pd.factorize(da.coords[replicate].to_numpy(), sort=True)
+                rep_codes, n_rep = np.asarray(rc, dtype=np.intp), len(ru)
+            elif paired:
+                raise ValueError("paired=True needs replicate= (the coordinate shared by paired replicates)")
+            data = np.asarray(da.transpose(*plan.kept, *plan.reduced).to_numpy())
+            rows = data.reshape(-1, data.shape[-1])
+            keep = [i for i in range(len(plan.labels)) if i != ref]
+            results = []
+            for r in range(rows.shape[0]):  # one test per position of the kept dims, not per group
+                res = fold_change_codes(
+                    rows[r], plan.codes, len(plan.labels), ref, replicate_codes=rep_codes,
+                    n_replicates=n_rep, paired=paired, equal_var=equal_var,
+                    confidence_level=confidence_level, adjust=adjust, equivalence=equivalence,
+                    equivalence_alpha=equivalence_alpha,
+                    nonpositive="drop" if nonpositive == "raise" else nonpositive, skipna=skipna,
+                    where=_where(name))
+                if nonpositive == "raise" and np.asarray(res["n_nonpositive"]).sum():
+                    from logstats.core.transform import nonpositive_message
+
+                    counts = np.asarray(res["n_nonpositive"]).sum(axis=0)
+                    raise ValueError(nonpositive_message(_where(name), int(counts.sum()),
+                                                         [plan.labels[i] for i in np.flatnonzero(counts)]))
+                results.append(res)
+            shape = data.shape[:-1] + (len(keep),)
+            coords = plan.coords(da)
+            coords[by] = plan.group_index.take(keep)
+            out = {}
+            for k in results[0]:
+                if k == "log_ratio":
+                    continue
+                v = np.stack([np.asarray(r_[k])[0, keep] for r_ in results]).reshape(shape)
+                attrs = {}
+                out[k] = xr.DataArray(v, dims=plan.out_dims(), coords=coords, attrs=attrs)
+            return xr.Dataset(out)
+
+        return self._tidy(self._each(one))
+
     def log(self, *, base: Any = "e", nonpositive: str = "raise", keep_attrs: bool = True) -> Any:
         """Same-shape log transform (base ``"e"``, 2 or 10); ``units`` become ``log_<base>(units)``."""
         check_nonpositive(nonpositive)

@@ -27,6 +27,7 @@ __all__ = [
     "FIELDS",
     "LogMoments",
     "combine_moments",
+    "log_moments_by_codes",
     "moments_along",
     "moments_by_codes",
     "reduce_moments",
@@ -195,8 +196,21 @@ def moments_by_codes(values: Any, codes: Any, ngroups: int, *, where: str = "the
     return out
 
 
+def log_moments_by_codes(logs: Any, codes: Any, ngroups: int) -> LogMoments:
+    """Like :func:`moments_by_codes` for numbers already on the log scale (e.g. replicate means of logs).
+
+    NaN entries are counted as missing; nothing is logged again and nothing is non-positive.
+    """
+    y = np.asarray(logs, dtype=np.float64)
+    lv = LoggedValues(y=y, missing=np.isnan(y), nonpositive=np.zeros(y.shape, dtype=bool))
+    return _grouped(lv, np.asarray(codes), ngroups)
+
+
 def _moments_by_codes(values: Any, codes: Any, ngroups: int, *, where: str) -> LogMoments:
-    lv = to_logs(values, where=where)
+    return _grouped(to_logs(values, where=where), codes, ngroups)
+
+
+def _grouped(lv: LoggedValues, codes: Any, ngroups: int) -> LogMoments:
     y = lv.y
     codes = np.asarray(codes, dtype=np.intp)
     if y.ndim == 0:

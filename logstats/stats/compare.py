@@ -36,7 +36,7 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
-from logstats.core.moments import LogMoments, moments_by_codes
+from logstats.core.moments import LogMoments, log_moments_by_codes, moments_by_codes
 from logstats.core.transform import check_nonpositive
 from logstats.stats.estimate import t_quantile
 
@@ -399,30 +399,8 @@ def paired_moments(
 
 
 def _moments_of_logs(y: np.ndarray, use: np.ndarray, codes: np.ndarray, ngroups: int) -> LogMoments:
-    """Moments of numbers that are already on the log scale (replicate means, their differences).
-
-    The corrected two-pass formula of :func:`~logstats.core.moments.moments_by_codes` (Björck 1996;
-    Higham 2002, §1.9) applied to ``y[use]`` grouped by ``codes[use]``, without taking logs again:
-    ``m2 = Σd² − (Σd)²/n`` with ``d`` the deviations from the first-pass mean. ``ddof`` plays no
-    part here (m2 is a sum of squares); the variances downstream use ddof=1.
-    """
-    ik = codes[use]
-    yk = y[use]
-    n = np.bincount(ik, minlength=ngroups)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        mean = np.bincount(ik, weights=yk, minlength=ngroups) / n
-        d = yk - mean[ik]
-        corr = np.bincount(ik, weights=d, minlength=ngroups)
-        m2 = np.maximum(np.bincount(ik, weights=d * d, minlength=ngroups) - corr * corr / n, 0.0)
-        mean = mean + corr / n
-    zeros = np.zeros(ngroups, dtype=np.int64)
-    return LogMoments(
-        n=n.astype(np.int64),
-        mean_log=np.where(n > 0, mean, np.nan),
-        m2_log=np.where(n > 0, m2, np.nan),
-        n_missing=zeros,
-        n_nonpositive=zeros,
-    )
+    """Moments of numbers already on the log scale (replicate means, their differences), ``y[use]``."""
+    return log_moments_by_codes(np.where(use, y, np.nan), np.where(use, codes, -1), ngroups)
 
 
 def fold_change_codes(
