@@ -97,7 +97,7 @@ def check_policy(m: LogMoments, *, nonpositive: str, where: str, labels: Sequenc
     groups = None
     if labels is not None and bad.ndim >= 1:
         per_group = bad.reshape(-1, bad.shape[-1]).sum(axis=0)
-        groups = [labels[i] for i in np.flatnonzero(per_group)]
+        groups = [labels[int(i)] for i in np.flatnonzero(per_group)]
     raise ValueError(nonpositive_message(where, total, groups))
 
 
@@ -123,8 +123,8 @@ def finalize(stacked: Any, *, kind: str, skipna: bool = True, nonpositive: str =
     if kind not in FINALIZERS:
         raise ValueError(f"unknown reduction {kind!r}")
     names = FINALIZERS[kind][1]
-    kw = dict(kind=kind, skipna=skipna, nonpositive=nonpositive, where=where, labels=labels,
-              params=params or {})
+    kw: dict[str, Any] = dict(kind=kind, skipna=skipna, nonpositive=nonpositive, where=where,
+                              labels=labels, params=params or {})
     if is_dask(stacked):
         chunks = stacked.chunks[:-1] + ((len(names),),)
         return stacked.map_blocks(finalize_numpy, chunks=chunks, dtype=np.float64, **kw), names

@@ -47,7 +47,7 @@ def resolve_keys(obj: pd.DataFrame | pd.Series, by: Any) -> list[pd.Series]:
                 raise ValueError(f"by= array has length {len(item)}, the data has {len(obj)} rows")
             keys.append(pd.Series(item, index=obj.index, name=getattr(item, "name", None)))
         elif isinstance(obj, pd.DataFrame) and item in obj.columns:
-            keys.append(obj[item])
+            keys.append(obj[item])  # type: ignore[arg-type]
         elif item in (obj.index.names or []) and item is not None:
             keys.append(pd.Series(obj.index.get_level_values(item), index=obj.index, name=item))
         else:
@@ -130,7 +130,8 @@ def _is_value_dtype(dtype: Any) -> bool:
 def value_columns(df: pd.DataFrame, columns: Any, exclude: Sequence[Hashable] = ()) -> list[Hashable]:
     """The value columns: named ones (checked) or, by default, numeric non-boolean columns not in ``by``."""
     if columns is None:
-        cols = [c for c in df.columns if c not in set(exclude) and _is_value_dtype(df[c].dtype)]
+        skip = set(exclude)
+        cols: list[Hashable] = [c for c in df.columns if c not in skip and _is_value_dtype(df[c].dtype)]
         if not cols:
             raise TypeError(
                 f"no numeric value columns to summarise (columns: {list(df.columns)!r}; group keys: "
@@ -138,6 +139,7 @@ def value_columns(df: pd.DataFrame, columns: Any, exclude: Sequence[Hashable] = 
             )
         return cols
     cols = [columns] if not isinstance(columns, (list, tuple, pd.Index)) else list(columns)
+    cols = list[Hashable](cols)
     missing = [c for c in cols if c not in df.columns]
     if missing:
         raise KeyError(f"columns {missing!r} are not in the data; there are {list(df.columns)!r}")

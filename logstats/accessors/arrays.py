@@ -12,28 +12,20 @@ import numpy as np
 
 from logstats.accessors._engine import finalize, is_dask, stacked_moments
 from logstats.core import moments as _core_moments
-from logstats.core.moments import FIELDS, LogMoments
+from logstats.core.moments import FIELDS, LogMoments, normalize_axes
 from logstats.core.transform import exp_values, log_values
 
 __all__ = ["combine_moments", "exp", "gcv", "gmean", "gsd", "log", "moments", "summary"]
 
 
 def _prepare(x: Any, axis: Any) -> tuple[Any, int]:
+    """Move the reduced axes last (a view for numpy, lazy for dask); 0-d input becomes 1-d."""
     if not is_dask(x):
         x = np.asarray(x)
-    nd = x.ndim
-    if axis is None:
-        axes = tuple(range(nd))
-    else:
-        axes = tuple(int(a) % nd if nd else 0 for a in ((axis,) if np.isscalar(axis) else axis))
-        for a in (axis,) if np.isscalar(axis) else axis:
-            if not -nd <= int(a) < nd:
-                raise ValueError(f"axis {a} is out of bounds for an array of {nd} dimension(s)")
-    if nd == 0:
+    if x.ndim == 0:
         x = x.reshape(1)
-        axes = (0,)
-        nd = 1
-    keep = [i for i in range(nd) if i not in axes]
+    axes = tuple(range(x.ndim)) if axis is None else normalize_axes(axis, x.ndim)
+    keep = [i for i in range(x.ndim) if i not in axes]
     return x.transpose(keep + list(axes)), len(axes)
 
 

@@ -357,6 +357,32 @@ class _PandasBase:
             out[col] = exp_values(column_values(df[col], col), base=base, where=_where(col))
         return out
 
+    # ------------------------------------------------------------------ figures and report
+    # The drawing lives in the face layer (logstats.plot, logstats.report); these only forward to it.
+    def plot_hist(self, *args: Any, **kwargs: Any) -> Any:
+        """Log-binned histogram with the fitted log-normal density; see :func:`logstats.plot.hist`."""
+        from logstats import plot
+
+        return plot.hist(self._obj, *args, **kwargs)
+
+    def plot_groups(self, *args: Any, **kwargs: Any) -> Any:
+        """Per-cell points, replicate means and gmean ×/÷ CI per group; see :func:`logstats.plot.groups`."""
+        from logstats import plot
+
+        return plot.groups(self._obj, *args, **kwargs)
+
+    def plot_qq(self, *args: Any, **kwargs: Any) -> Any:
+        """Normal probability plot of the logs; see :func:`logstats.plot.qq`."""
+        from logstats import plot
+
+        return plot.qq(self._obj, *args, **kwargs)
+
+    def report(self, *args: Any, **kwargs: Any) -> str:
+        """A self-contained HTML report of the whole analysis; see :func:`logstats.report.build_report`."""
+        from logstats import report
+
+        return report.build_report(self._obj, *args, **kwargs)
+
 
 def _maybe_int(s: pd.Series) -> pd.Series:
     vals = s.to_numpy(dtype=np.float64)

@@ -61,7 +61,7 @@ class Plan:
             codes, uniques = pd.factorize(coord.to_numpy(), sort=True, use_na_sentinel=True)
             self.codes: np.ndarray | None = np.asarray(codes, dtype=np.intp)
             self.labels: list[Any] | None = list(uniques)
-            self.group_index = pd.Index(uniques, name=by)
+            self.group_index: pd.Index | None = pd.Index(uniques, name=by)
             self.n_unkeyed = int((codes < 0).sum())
         else:
             if dim is None:
@@ -115,7 +115,7 @@ def _wrap(arr: Any, names: Sequence[str], plan: Plan, da: xr.DataArray, keep_att
         v = arr[..., i]
         if k in INT_FIELDS:
             v = v.astype(np.int64)
-        attrs = {}
+        attrs: dict[Any, Any] = {}
         if keep_attrs and k in UNIT_FIELDS:
             attrs = dict(da.attrs)
         out[k] = xr.DataArray(v, dims=dims, coords=coords, attrs=attrs)
@@ -219,7 +219,7 @@ class _XarrayBase:
         def one(da: xr.DataArray, name: Hashable) -> xr.Dataset:
             _check_value(da, name)
             plan = Plan(da, dim, by)
-            assert plan.labels is not None and plan.codes is not None
+            assert plan.labels is not None and plan.codes is not None and plan.group_index is not None
             if reference not in plan.labels:
                 raise ValueError(f"reference={reference!r} is not a level of {by!r}; "
                                  f"the levels are {plan.labels!r}")
@@ -260,8 +260,7 @@ class _XarrayBase:
                 if k == "log_ratio":
                     continue
                 v = np.stack([np.asarray(r_[k])[0, keep] for r_ in results]).reshape(shape)
-                attrs = {}
-                out[k] = xr.DataArray(v, dims=plan.out_dims(), coords=coords, attrs=attrs)
+                out[k] = xr.DataArray(v, dims=plan.out_dims(), coords=coords)
             return xr.Dataset(out)
 
         return self._tidy(self._each(one))
@@ -304,6 +303,26 @@ class _XarrayBase:
         for name, da in self._variables():
             ds[name] = fn(da, name)
         return ds
+
+    # ------------------------------------------------------------------ figures and report
+    # The drawing lives in the face layer (logstats.plot, logstats.report); these only forward to it.
+    def plot_hist(self, *args: Any, **kwargs: Any) -> Any:
+        """Log-binned histogram with the fitted log-normal density; see :func:`logstats.plot.hist`."""
+        from logstats import plot
+
+        return plot.hist(self._obj, *args, **kwargs)
+
+    def plot_groups(self, *args: Any, **kwargs: Any) -> Any:
+        """Per-cell points, replicate means and gmean ×/÷ CI per group; see :func:`logstats.plot.groups`."""
+        from logstats import plot
+
+        return plot.groups(self._obj, *args, **kwargs)
+
+    def plot_qq(self, *args: Any, **kwargs: Any) -> Any:
+        """Normal probability plot of the logs; see :func:`logstats.plot.qq`."""
+        from logstats import plot
+
+        return plot.qq(self._obj, *args, **kwargs)
 
 
 @xr.register_dataarray_accessor("logstats")

@@ -30,6 +30,7 @@ __all__ = [
     "log_moments_by_codes",
     "moments_along",
     "moments_by_codes",
+    "normalize_axes",
     "reduce_moments",
 ]
 
@@ -59,7 +60,7 @@ class LogMoments:
     m2_log: np.ndarray
     n_missing: np.ndarray
     n_nonpositive: np.ndarray
-    n_censored: np.ndarray = field(default=None)  # type: ignore[assignment]
+    n_censored: np.ndarray = field(default=None)  # type: ignore[assignment,arg-type]
 
     def __post_init__(self) -> None:
         if self.n_censored is None:
@@ -133,7 +134,7 @@ def moments_along(values: Any, axis: int | Sequence[int] | None = None, *, where
     if axis is None:
         axes = tuple(range(y.ndim))
     else:
-        axes = _normalize_axes(axis, y.ndim)
+        axes = normalize_axes(axis, y.ndim)
     valid = lv.valid
     n = valid.sum(axis=axes)
     yz = np.where(valid, y, 0.0)
@@ -154,8 +155,9 @@ def moments_along(values: Any, axis: int | Sequence[int] | None = None, *, where
     )
 
 
-def _normalize_axes(axis: int | Sequence[int], ndim: int) -> tuple[int, ...]:
-    seq = (axis,) if np.isscalar(axis) else tuple(axis)  # type: ignore[arg-type]
+def normalize_axes(axis: int | Sequence[int], ndim: int) -> tuple[int, ...]:
+    """Sorted non-negative axes from an int or a sequence; ValueError when out of range or repeated."""
+    seq: tuple[Any, ...] = (axis,) if isinstance(axis, (int, np.integer)) else tuple(axis)
     out = []
     for a in seq:
         a = int(a)
@@ -267,7 +269,7 @@ def reduce_moments(m: LogMoments, axis: int | Sequence[int], *, keepdims: bool =
     weighted mean removed by a second pass, so the result is independent of how the data were split
     up to rounding.
     """
-    axes = _normalize_axes(axis, np.ndim(m.n))
+    axes = normalize_axes(axis, np.ndim(m.n))
     n_i = np.asarray(m.n, dtype=np.float64)
     has = n_i > 0
     mi = np.where(has, m.mean_log, 0.0)
