@@ -250,6 +250,19 @@ def fit_lognormal(
     Olsen, R. J. (1978). Note on the uniqueness of the maximum likelihood estimator for the Tobit model.
     Econometrica 46:1211-1215 (cited from memory).
     Helsel, D. R. (2012). Statistics for Censored Environmental Data Using Minitab and R, 2nd ed. Wiley.
+
+    Examples
+    --------
+    Two invented groups of concentrations with a detection limit of 1.0:
+
+    >>> import numpy as np
+    >>> x = np.array([0.4, 1.3, 2.2, 3.1, 0.7, 5.0, 8.5, 0.2, 0.9])
+    >>> codes = np.array([0, 0, 0, 0, 1, 1, 1, 1, 1])
+    >>> out = fit_lognormal(x, codes, 2, detection_limit=1.0)
+    >>> out["status"], out["n_censored"]
+    (array(['ok', 'ok'], dtype=object), array([1, 3]))
+    >>> np.round(out["mu"], 4), np.round(out["sigma"], 4)
+    (array([ 0.4665, -0.2879]), array([0.5635, 2.031 ]))
     """
     check_nonpositive(nonpositive)
     max_iter = operator.index(max_iter)
@@ -406,7 +419,7 @@ def _censored_newton(
     scale = np.sqrt((m2 + m2c + (ybar - cbar) ** 2 * (k * mc / ntot)) / ntot)
     yb = (ybar - centre) / scale  # standardized mean of detected logs
     M = m2 / (scale * scale)  # standardized sum of squared deviations of detected logs
-    c = (rc - centre[rg]) / scale
+    c = (rc - centre[rg]) / scale[rg]
 
     def loglik(d: np.ndarray, g: np.ndarray, sel: np.ndarray) -> np.ndarray:
         """Standardized log-likelihood (constants dropped) at (δ, γ) for groups in ``sel``."""
@@ -755,6 +768,16 @@ def scale_check(
     D'Agostino, R. B. & Pearson, E. S. (1973). Tests for departure from normality. Biometrika
     60:613-622; Anscombe, F. J. & Glynn, W. J. (1983). Distribution of the kurtosis statistic b2 for
     normal samples. Biometrika 70:227-234.
+
+    Examples
+    --------
+    An invented log-normal sample of 200 values:
+
+    >>> import numpy as np
+    >>> x = np.random.default_rng(0).lognormal(0.0, 1.0, 200)
+    >>> out = scale_check(x, np.zeros(200, dtype=int), 1)
+    >>> out["preferred"], out["normality_test"], np.round(out["delta_aic"], 1)
+    (array(['log'], dtype=object), array(['shapiro_wilk'], dtype=object), array([163.6]))
     """
     check_nonpositive(nonpositive)
     x = _values_1d(values)
@@ -906,8 +929,9 @@ def lognormal_mean(
     -------
     dict of str to ndarray, each of the shape of ``m``
         ``estimate``, ``ci_low``, ``ci_high`` (float) and ``method`` (object, the method's name).
-        The interval is NaN for ``n < 2`` (and, for ``"bootstrap"``, ``n < 3``, where the jackknife
-        acceleration is undefined) and wherever the moments are NaN.
+        ``estimate`` is NaN for ``n < 2`` (``s²`` is undefined). The interval is NaN for ``n < 2``
+        (for ``"bootstrap"``, ``n < 3``, where the jackknife acceleration is undefined) and wherever
+        the moments are NaN.
 
     Notes
     -----
@@ -938,6 +962,17 @@ def lognormal_mean(
     115:103-121.
     Efron, B. (1987). Better bootstrap confidence intervals. JASA 82:171-185; Efron, B. & Tibshirani,
     R. J. (1993). An Introduction to the Bootstrap, ch. 14.
+
+    Examples
+    --------
+    Olsson's (2005) example, n = 40, ȳ = 5.127, s² = 1.010 (so m2 = s²·(n − 1)):
+
+    >>> import numpy as np
+    >>> m = LogMoments(n=np.array([40]), mean_log=np.array([5.127]), m2_log=np.array([1.010 * 39]),
+    ...                n_missing=np.array([0]), n_nonpositive=np.array([0]))
+    >>> out = lognormal_mean(m, method="cox")
+    >>> np.round(out["ci_low"], 2), np.round(out["ci_high"], 2)
+    (array([190.24]), array([409.82]))
     """
     if method not in LOGNORMAL_MEAN_METHODS:
         raise ValueError(
@@ -960,6 +995,7 @@ def lognormal_mean(
     if method in ("cox", "modified_cox"):
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             half = np.sqrt(s2 / n + s2 * s2 / (2.0 * (n - 1.0)))
+            q: np.ndarray | float
             if method == "cox":
                 q = float(special.ndtri(0.5 + cl / 2.0))
             else:
