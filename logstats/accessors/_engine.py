@@ -129,3 +129,49 @@ def finalize(stacked: Any, *, kind: str, skipna: bool = True, nonpositive: str =
         chunks = stacked.chunks[:-1] + ((len(names),),)
         return stacked.map_blocks(finalize_numpy, chunks=chunks, dtype=np.float64, **kw), names
     return finalize_numpy(stacked, **kw), names
+
+
+# --------------------------------------------------------------------------- raw-value methods
+# Fits, the scale check and the log-normal mean need more than moments (censoring, order
+# statistics, resampling). They run on 1-D values with group codes; this applies the shared policy.
+
+def raise_for_counts(counts: np.ndarray, *, nonpositive: str, where: str, labels: Sequence[Any] | None) -> None:
+    """The ``nonpositive="raise"`` refusal from per-group counts (last axis = groups)."""
+    if nonpositive != "raise":
+        return
+    counts = np.asarray(counts)
+    total = int(counts.sum())
+    if total:
+        per_group = counts.reshape(-1, counts.shape[-1]).sum(axis=0) if counts.ndim else counts
+        groups = [labels[int(i)] for i in np.flatnonzero(per_group)] if labels is not None else None
+        raise ValueError(nonpositive_message(where, total, groups))
+
+
+def grouped_method(kind: str, values: np.ndarray, codes: np.ndarray, ngroups: int, *, where: str,
+                   labels: Sequence[Any] | None = None, nonpositive: str = "raise", skipna: bool = True,
+                   **kw: Any) -> dict[str, np.ndarray]:
+    """Run ``fit``, ``scale_check`` or ``lognormal_mean`` for all groups at once."""
+    from logstats.stats import fit
+
+    check_nonpositive(nonpositive)
+    policy = "drop" if nonpositive == "raise" else nonpositive
+    if kind == "fit":
+        # with a limit, values at or below it (zeros and negatives included) are censored, not refused
+        limit = kw.pop("detection_limit", None)
+        res = fit.fit_lognormal(values, codes, ngroups, detection_limit=limit, nonpositive=policy,
+                                skipna=skipna, **kw)
+    elif kind == "scale_check":
+        res = fit.scale_check(values, codes, ngroups, nonpositive=policy, skipna=skipna)
+    elif kind == "lognormal_mean":
+        m = moments_by_codes(values, codes, ngroups, where=where)
+        raise_for_counts(m.n_nonpositive, nonpositive=nonpositive, where=where, labels=labels)
+        m = m.with_policy(skipna=skipna, nonpositive=policy)
+        method = kw.get("method", "cox")
+        if method == "bootstrap":
+            kw = {**kw, "values": values, "codes": codes}
+        res = fit.lognormal_mean(m, **kw)
+        res = {**res, "n": m.n, "n_missing": m.n_missing, "n_nonpositive": m.n_nonpositive}
+    else:
+        raise ValueError(f"unknown method {kind!r}")
+    raise_for_counts(res["n_nonpositive"], nonpositive=nonpositive, where=where, labels=labels)
+    return res

@@ -25,7 +25,7 @@ class Groups:
 
     @property
     def labels(self) -> list[Any]:
-        return list(self.index)
+        return self.index.tolist()  # the same Python scalars / tuples as list(index), faster
 
 
 def resolve_keys(obj: pd.DataFrame | pd.Series, by: Any) -> list[pd.Series]:
@@ -56,6 +56,37 @@ def resolve_keys(obj: pd.DataFrame | pd.Series, by: Any) -> list[pd.Series]:
     return keys
 
 
+def _int_codes(key: pd.Series, sort: bool) -> tuple[np.ndarray, pd.Index] | None:
+    """Sorted codes and levels of a plain integer key by counting: O(n), no hash table, no sort.
+
+    The same result as ``pd.factorize(key, sort=True)`` (levels keep the key's dtype), in about half
+    the time and with one codes array of extra memory instead of two. None when it does not apply
+    (unsorted, nullable or unsigned 64-bit keys, or values spread over far more than ``len(key)``).
+    """
+    dtype = key.dtype
+    if not sort or not isinstance(dtype, np.dtype) or dtype.kind not in "iu" or dtype == np.uint64:
+        return None
+    a = key.to_numpy()
+    n = a.size
+    if n == 0:
+        return None
+    lo, hi = int(a.min()), int(a.max())
+    span = hi - lo + 1
+    if span > max(2 * n, 1 << 16):
+        return None
+    codes = np.empty(n, dtype=np.intp)
+    np.subtract(a, lo, out=codes, dtype=np.intp, casting="unsafe")  # exact: span fits in intp
+    present = np.bincount(codes, minlength=span).astype(bool)
+    occurs = np.flatnonzero(present)
+    if len(occurs) < span:
+        lookup = np.cumsum(present, dtype=np.intp) - 1
+        step = 1 << 20
+        for start in range(0, n, step):  # remap in place, a block at a time: no second codes array
+            block = codes[start : start + step]
+            np.take(lookup, block, out=block)
+    return codes, pd.Index((occurs + lo).astype(dtype))
+
+
 def factorize_keys(keys: Sequence[pd.Series], *, observed: bool = True, dropna: bool = True,
                    sort: bool = True) -> Groups:
     """Integer group codes for one or several keys, grouped as ``DataFrame.groupby`` would.
@@ -63,42 +94,63 @@ def factorize_keys(keys: Sequence[pd.Series], *, observed: bool = True, dropna: 
     Categorical keys keep unobserved levels only with ``observed=False`` (then, as in pandas, groups
     are the product of the keys' levels); NaN keys are left out with ``dropna=True`` (counted, and a
     LogstatsWarning says how many rows) or form their own group with ``dropna=False``.
+
+    One linear pass per key: integer keys are counted (:func:`_int_codes`), other keys hashed by
+    ``pd.factorize``; which key combinations occur is marked in a table of all combinations (no sort
+    of the rows), falling back to ``np.unique`` only when that table would be far longer than the data.
     """
     codes_list, levels_list = [], []
     any_cat = False
+    all_levels_occur = True  # pd.factorize reports only values that occur; categories need not
     for key in keys:
         if isinstance(key.dtype, pd.CategoricalDtype):
             any_cat = True
+            all_levels_occur = False
             cat = key.array
             codes = np.asarray(cat.codes, dtype=np.intp)
             levels = pd.Index(cat.categories)
         else:
-            codes, levels = pd.factorize(key, sort=sort, use_na_sentinel=True)
-            codes = np.asarray(codes, dtype=np.intp)
-            levels = pd.Index(levels)
+            counted = _int_codes(key, sort)
+            if counted is not None:
+                codes, levels = counted
+            else:
+                codes, levels = pd.factorize(key, sort=sort, use_na_sentinel=True)
+                codes = np.asarray(codes, dtype=np.intp)
+                levels = pd.Index(levels)
         if not dropna and (codes < 0).any():
             codes = np.where(codes < 0, len(levels), codes)
             levels = levels.append(pd.Index([np.nan]))
         codes_list.append(codes)
         levels_list.append(levels)
     n = len(codes_list[0])
-    keyed = np.ones(n, dtype=bool)
-    for c in codes_list:
-        keyed &= c >= 0
-    n_unkeyed = int(n - keyed.sum())
+    if len(codes_list) == 1:
+        keyed = codes_list[0] >= 0
+    else:
+        keyed = np.ones(n, dtype=bool)
+        for c in codes_list:
+            keyed &= c >= 0
+    n_unkeyed = int(n - np.count_nonzero(keyed))
     dims = tuple(len(lv) for lv in levels_list)
     if len(codes_list) == 1:
         flat = codes_list[0]
     else:
         flat = np.full(n, -1, dtype=np.intp)
-        if keyed.any():
+        if n_unkeyed < n:
             flat[keyed] = np.ravel_multi_index(tuple(c[keyed] for c in codes_list), dims)
     total = int(np.prod(dims)) if dims else 0
     if not observed and any_cat:
         uniq = np.arange(total, dtype=np.intp)
         out_codes = flat
     else:
-        uniq = np.unique(flat[keyed])  # ascending codes: sorted key order (first-seen order if sort=False)
+        # ascending codes: sorted key order (first-seen order if sort=False)
+        if len(codes_list) == 1 and all_levels_occur:
+            uniq = np.arange(total, dtype=np.intp)
+        elif total <= max(4 * n, 1 << 20):
+            occurs = np.zeros(total, dtype=bool)
+            occurs[flat[keyed] if n_unkeyed else flat] = True
+            uniq = np.flatnonzero(occurs)
+        else:
+            uniq = np.unique(flat[keyed])
         if len(uniq) == total:
             out_codes = flat  # every combination observed: the codes are already final
         else:

@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from logstats.accessors._engine import INT_FIELDS, finalize, stacked_moments
+from logstats.accessors._engine import INT_FIELDS, finalize, grouped_method, stacked_moments
 from logstats.accessors._labels import Groups, column_values, factorize_keys, resolve_keys, value_columns
 from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
 
@@ -231,6 +231,77 @@ class _PandasBase:
             else:
                 out = out.join(lin)
         return out
+
+    def fit(self, by: Any = None, *, columns: Any = None, detection_limit: Any = None,
+            skipna: bool = True, nonpositive: str = "raise", max_iter: int = 100, tol: float = 1e-10,
+            observed: bool = True, dropna: bool = True, sort: bool = True) -> Any:
+        """Log-normal maximum-likelihood fit per group, left-censored at a detection limit.
+
+        Columns ``mu``, ``sigma`` (MLE of the mean and SD of ln x, so ``ddof=0``), ``n`` (values in the
+        fit, censored included), ``n_censored``, ``loglik`` (on the original scale), ``converged``,
+        then ``se_mu``, ``se_sigma``, ``n_iter``, ``n_missing``, ``n_nonpositive`` and ``status``
+        (``"closed_form"``, ``"ok"``, ``"all_censored"``, ``"too_few_detects"``, ...).
+
+        ``detection_limit`` is a number or the name of a column (or an aligned Series) holding each
+        row's limit; a value **at or below** its limit is censored, zeros and negatives included (the
+        ``nonpositive`` policy then does not apply to them). Censored groups are fitted all at once by
+        Newton's method with step halving (see :func:`logstats.stats.fit.fit_lognormal`); a wholly
+        censored group gets NaN with its status, never a number.
+        """
+        limit_col = detection_limit if isinstance(detection_limit, str) else None
+        df, cols, groups = self._setup(by, columns, observed, dropna, sort,
+                                       other_keys=(limit_col,) if limit_col else ())
+        if limit_col is not None:
+            if limit_col not in df.columns:
+                raise KeyError(f"detection_limit={limit_col!r} is not a column; there are {list(df.columns)!r}")
+            limit: Any = column_values(df[limit_col], limit_col)
+        elif isinstance(detection_limit, pd.Series):
+            limit = column_values(detection_limit.reindex(df.index), detection_limit.name)
+        else:
+            limit = detection_limit
+        return self._raw_method("fit", df, cols, groups, skipna=skipna, nonpositive=nonpositive,
+                                detection_limit=limit, max_iter=max_iter, tol=tol)
+
+    def scale_check(self, by: Any = None, *, columns: Any = None, skipna: bool = True,
+                    nonpositive: str = "raise", observed: bool = True, dropna: bool = True,
+                    sort: bool = True) -> Any:
+        """Linear or log scale? Normal and log-normal fitted to the same values, per group.
+
+        ``aic_normal`` and ``aic_lognormal`` are both for the data on the original scale (the
+        log-normal likelihood includes the Jacobian −Σ ln x), ``preferred`` is ``"log"`` when the
+        log-normal has the lower AIC; ``normality_p_linear`` / ``normality_p_log`` are Shapiro–Wilk
+        p-values (D'Agostino–Pearson beyond 5000 values, named in ``normality_test``); ``mean``,
+        ``gmean``, ``mean_ratio`` = mean / gmean and ``expected_ratio`` = exp(s²/2) (s with ddof=1),
+        the ratio log-normality predicts; plus skewness on both scales.
+        """
+        df, cols, groups = self._setup(by, columns, observed, dropna, sort)
+        return self._raw_method("scale_check", df, cols, groups, skipna=skipna, nonpositive=nonpositive)
+
+    def lognormal_mean(self, by: Any = None, *, columns: Any = None, method: str = "cox",
+                       confidence_level: float = 0.95, random_state: Any = None, n_draws: int = 10000,
+                       skipna: bool = True, nonpositive: str = "raise", observed: bool = True,
+                       dropna: bool = True, sort: bool = True) -> Any:
+        """Arithmetic mean implied by a log-normal, ``exp(ȳ + s²/2)`` (s with ddof=1), with a CI.
+
+        ``method``: ``"cox"`` (Land 1972; Zhou & Gao 1997), ``"modified_cox"`` (t quantile;
+        Armstrong 1992, Olsson 2005), ``"gci"`` (generalized CI, Krishnamoorthy & Mathew 2003; Monte
+        Carlo with ``n_draws``) or ``"bootstrap"`` (BCa). The Monte Carlo methods are reproducible for a
+        given ``random_state`` and never touch numpy's global random state. Columns ``estimate``,
+        ``ci_low``, ``ci_high``, ``method``, ``n``, ``n_missing``, ``n_nonpositive``.
+        """
+        df, cols, groups = self._setup(by, columns, observed, dropna, sort)
+        return self._raw_method("lognormal_mean", df, cols, groups, skipna=skipna, nonpositive=nonpositive,
+                                method=method, confidence_level=confidence_level, random_state=random_state,
+                                n_draws=n_draws)
+
+    def _raw_method(self, kind: str, df: pd.DataFrame, cols: list[Hashable], groups: Groups | None,
+                    **kw: Any) -> Any:
+        codes = groups.codes if groups is not None else np.zeros(len(df), dtype=np.intp)
+        ngroups = groups.ngroups if groups is not None else 1
+        labels = groups.labels if groups is not None else None
+        results = [(col, grouped_method(kind, column_values(df[col], col), codes, ngroups,
+                                        where=_where(col), labels=labels, **kw)) for col in cols]
+        return self._tidy(results, groups)
 
     def fold_change(self, by: Any, reference: Any, *, columns: Any = None, replicate: Any = None,
                     paired: bool = False, within: Any = None, equal_var: bool = False,

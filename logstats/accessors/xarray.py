@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from logstats.accessors._engine import INT_FIELDS, finalize, is_dask, stacked_moments
+from logstats.accessors._engine import INT_FIELDS, finalize, grouped_method, is_dask, stacked_moments
 from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
 
 __all__ = ["LogstatsArrayAccessor", "LogstatsDatasetAccessor"]
@@ -122,6 +122,44 @@ def _wrap(arr: Any, names: Sequence[str], plan: Plan, da: xr.DataArray, keep_att
     return xr.Dataset(out)
 
 
+def _raw_array(kind: str, da: xr.DataArray, name: Hashable, dim: Any, by: Hashable | None, *,
+               skipna: bool, nonpositive: str, **kw: Any) -> xr.Dataset:
+    """Raw-value methods along ``dim``: every kept position and group solved in one flat pass.
+
+    Position ``r`` of the kept dims and group ``g`` become flat group ``r * G + g``, so the
+    statistics layer sees one 1-D problem however many channels or time points there are.
+    """
+    _check_value(da, name)
+    plan = Plan(da, dim, by)
+    data = np.asarray(da.transpose(*plan.kept, *plan.reduced).to_numpy(), dtype=np.float64)
+    lead = data.shape[: len(plan.kept)]
+    rows = int(np.prod(lead)) if lead else 1
+    flat = data.reshape(rows, -1)
+    width = flat.shape[1]
+    if plan.codes is None:
+        g, codes = 1, np.zeros(width, dtype=np.intp)
+    else:
+        g, codes = len(plan.labels or []), plan.codes
+    full = np.where(codes[None, :] >= 0, codes[None, :] + g * np.arange(rows)[:, None], -1).ravel()
+    limit = kw.pop("detection_limit", None)
+    if isinstance(limit, xr.DataArray):
+        limit = np.asarray(limit.transpose(*plan.kept, *plan.reduced).to_numpy(), dtype=np.float64).ravel()
+    if limit is not None:
+        kw["detection_limit"] = limit
+    labels = plan.labels if plan.labels is not None else None
+    res = grouped_method(kind, flat.ravel(), full, rows * g, where=_where(name),
+                         labels=(labels * rows) if labels is not None else None,
+                         nonpositive=nonpositive, skipna=skipna, **kw)
+    shape = lead + ((g,) if plan.by is not None else ())
+    coords = plan.coords(da)
+    out = {}
+    for k, v in res.items():
+        arr = np.asarray(v).reshape(shape)
+        attrs = dict(da.attrs) if k in UNIT_FIELDS else {}
+        out[k] = xr.DataArray(arr, dims=plan.out_dims(), coords=coords, attrs=attrs)
+    return xr.Dataset(out)
+
+
 class _XarrayBase:
     _obj: Any
 
@@ -198,6 +236,45 @@ class _XarrayBase:
         """
         return self._fields("summary", dim, by, keep_attrs, skipna=skipna, nonpositive=nonpositive,
                             params={"confidence_level": confidence_level, "ddof": ddof})
+
+    def fit(self, dim: Any = None, *, by: Hashable | None = None, detection_limit: Any = None,
+            skipna: bool = True, nonpositive: str = "raise", max_iter: int = 100,
+            tol: float = 1e-10) -> xr.Dataset:
+        """Log-normal MLE (``mu``, ``sigma`` with ddof=0, ``n``, ``n_censored``, ``loglik``,
+        ``converged``, ...) along ``dim``, per group of coordinate ``by``, as the pandas ``fit``.
+
+        ``detection_limit`` is a number or the name of a coordinate (DataArray) or variable (Dataset)
+        broadcastable against the data. Every position of the other dims is fitted in the same
+        vectorised pass. Dask-backed data are loaded (the censored likelihood needs every value).
+        """
+        def one(da: xr.DataArray, name: Hashable) -> xr.Dataset:
+            limit: Any = detection_limit
+            if isinstance(detection_limit, str):
+                source = self._obj
+                if detection_limit not in source.coords and not (
+                        isinstance(source, xr.Dataset) and detection_limit in source.data_vars):
+                    raise KeyError(f"detection_limit={detection_limit!r} is not a coordinate or variable")
+                limit = xr.broadcast(source[detection_limit], da)[0]
+            return _raw_array("fit", da, name, dim, by, skipna=skipna, nonpositive=nonpositive,
+                              detection_limit=limit, max_iter=max_iter, tol=tol)
+
+        return self._tidy(self._each(one))
+
+    def scale_check(self, dim: Any = None, *, by: Hashable | None = None, skipna: bool = True,
+                    nonpositive: str = "raise") -> xr.Dataset:
+        """Normal versus log-normal on the original scale along ``dim`` (columns as the pandas
+        ``scale_check``). Dask-backed data are loaded (Shapiro–Wilk needs sorted groups)."""
+        return self._tidy(self._each(lambda da, name: _raw_array(
+            "scale_check", da, name, dim, by, skipna=skipna, nonpositive=nonpositive)))
+
+    def lognormal_mean(self, dim: Any = None, *, by: Hashable | None = None, method: str = "cox",
+                       confidence_level: float = 0.95, random_state: Any = None, n_draws: int = 10000,
+                       skipna: bool = True, nonpositive: str = "raise") -> xr.Dataset:
+        """Arithmetic mean implied by a log-normal along ``dim`` with a CI (``"cox"``,
+        ``"modified_cox"``, ``"gci"``, ``"bootstrap"``; see the pandas ``lognormal_mean``)."""
+        return self._tidy(self._each(lambda da, name: _raw_array(
+            "lognormal_mean", da, name, dim, by, skipna=skipna, nonpositive=nonpositive, method=method,
+            confidence_level=confidence_level, random_state=random_state, n_draws=n_draws)))
 
     def fold_change(self, dim: Any = None, *, by: Hashable, reference: Any, replicate: Hashable | None = None,
                     paired: bool = False, equal_var: bool = False, confidence_level: float = 0.95,
