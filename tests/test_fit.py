@@ -103,7 +103,8 @@ def test_lognormal_mean_cox_formula_and_reproducible():
 @requires_dask
 def test_xarray_fit_equals_pandas_and_dask_equals_numpy(assay):
     da = xr.DataArray(assay["marker"].to_numpy(), dims="cell", name="marker",
-                      coords={"arm": ("cell", assay["arm"].to_numpy()), "dl": ("cell", assay["dl"].to_numpy())})
+                      coords={"arm": ("cell", assay["arm"].to_numpy()),
+                              "dl": ("cell", assay["dl"].to_numpy())})
     x = da.logstats.fit("cell", by="arm", detection_limit="dl")
     p = assay.logstats.fit(by="arm", columns="marker", detection_limit="dl")
     np.testing.assert_allclose(x["mu"].to_numpy(), p["mu"].to_numpy(), rtol=1e-12)

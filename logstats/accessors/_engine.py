@@ -135,7 +135,8 @@ def finalize(stacked: Any, *, kind: str, skipna: bool = True, nonpositive: str =
 # Fits, the scale check and the log-normal mean need more than moments (censoring, order
 # statistics, resampling). They run on 1-D values with group codes; this applies the shared policy.
 
-def raise_for_counts(counts: np.ndarray, *, nonpositive: str, where: str, labels: Sequence[Any] | None) -> None:
+def raise_for_counts(counts: np.ndarray, *, nonpositive: str, where: str,
+                     labels: Sequence[Any] | None) -> None:
     """The ``nonpositive="raise"`` refusal from per-group counts (last axis = groups)."""
     if nonpositive != "raise":
         return

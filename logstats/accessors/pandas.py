@@ -253,7 +253,8 @@ class _PandasBase:
                                        other_keys=(limit_col,) if limit_col else ())
         if limit_col is not None:
             if limit_col not in df.columns:
-                raise KeyError(f"detection_limit={limit_col!r} is not a column; there are {list(df.columns)!r}")
+                raise KeyError(f"detection_limit={limit_col!r} is not a column; "
+                               f"there are {list(df.columns)!r}")
             limit: Any = column_values(df[limit_col], limit_col)
         elif isinstance(detection_limit, pd.Series):
             limit = column_values(detection_limit.reindex(df.index), detection_limit.name)
