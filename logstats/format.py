@@ -29,12 +29,14 @@ import pandas as pd
 __all__ = [
     "TIMES_DIVIDE",
     "TIMES_DIVIDE_ASCII",
+    "format_column",
     "format_factor",
     "format_interval",
     "format_number",
     "format_p",
     "format_table",
     "format_times_divide",
+    "is_text_column",
 ]
 
 #: The ×/÷ sign, and its ASCII fallback.
@@ -50,6 +52,8 @@ _COUNT_COLUMNS = frozenset({
 })
 #: Columns that are multiplicative factors (at least 1).
 _FACTOR_COLUMNS = frozenset({"gsd", "ci_factor"})
+#: Columns compared by differences (AIC, log-likelihood): one decimal, never rounded to 3 digits.
+_FIXED_COLUMNS = frozenset({"aic_normal", "aic_lognormal", "aic", "loglik", "delta_aic"})
 
 
 def _finite(x: Any) -> float | None:
@@ -210,6 +214,8 @@ def _column_kind(name: Hashable, s: pd.Series) -> str:
         return "count"
     if key in _FACTOR_COLUMNS:
         return "factor"
+    if key in _FIXED_COLUMNS:
+        return "fixed"
     if pd.api.types.is_numeric_dtype(s.dtype):
         return "number"
     return "text"
@@ -227,9 +233,36 @@ def _cell(v: Any, kind: str, digits: int) -> str:
         return (_special(v) or "nan") if fv is None else str(int(round(fv)))
     if kind == "factor":
         return format_factor(v, max(digits - 1, 1))
+    if kind == "fixed":
+        fv = _finite(v)
+        return (_special(v) or "nan") if fv is None else f"{fv:.1f}"
     if kind == "number":
         return format_number(v, digits)
     return "" if v is None else str(v)
+
+
+def format_column(values: Any, name: Hashable = None, *, digits: int = 3) -> list[str]:
+    """Format one result column cell by cell, choosing the style from its name and dtype.
+
+    p-values (``p_value``, ``p_adjusted`` …) get two significant digits, counts (``n``,
+    ``n_censored`` …) whole numbers, factors (``gsd``, ``ci_factor``) :func:`format_factor`,
+    AICs and log-likelihoods (compared by their differences) one decimal, other numbers
+    :func:`format_number`, booleans ``yes``/``no``, and anything else ``str``.
+
+    Examples
+    --------
+    >>> format_column([0.5, 0.0123], "p_value"), format_column([3.0, 4.0], "n")
+    (['0.50', '0.012'], ['3', '4'])
+    """
+    s = values if isinstance(values, pd.Series) else pd.Series(list(values) if not isinstance(
+        values, np.ndarray) else values)
+    kind = _column_kind("" if name is None else name, s)
+    return [_cell(v, kind, digits) for v in s.to_numpy(dtype=object)]
+
+
+def is_text_column(values: pd.Series, name: Hashable = None) -> bool:
+    """True when :func:`format_column` would left-align the column (text, not numbers)."""
+    return _column_kind("" if name is None else name, values) == "text"
 
 
 class _Column:
@@ -372,8 +405,3 @@ def _blocks(index: list[_Column], body: list[_Column], width: int | None) -> lis
         blocks[-1].append(c)
         used += need
     return blocks
-
-
-def as_text_cells(values: Any, digits: int = 3) -> list[str]:
-    """Format an array of numbers with :func:`format_number` (helper for reports)."""
-    return [format_number(v, digits) for v in np.asarray(values, dtype=np.float64).ravel()]

@@ -1,0 +1,760 @@
+"""Figures for log-normal data: log-binned histograms, per-group point clouds, probability plots.
+
+Every function takes a pandas Series, a DataFrame (with ``value=`` naming the column) or an xarray
+DataArray (with ``dim=``), draws on ``ax=`` when given (or a new figure), and returns what it drew
+on. matplotlib is an optional dependency (``pip install 'logstats[plot]'``) imported only inside the
+functions. The estimates drawn (fits, geometric means, intervals) come from the ``.logstats``
+accessors; this module only arranges them.
+
+Colours follow matplotlib's default colour cycle, or with ``palette="colorblind"`` the eight colours
+of Okabe & Ito (2008), distinguishable with the common forms of colour-vision deficiency.
+
+References
+----------
+Limpert, E., Stahel, W. A. & Abbt, M. (2001). Log-normal distributions across the sciences: keys
+and clues. BioScience 51:341-352 (geometric mean ×/÷ factor).
+Lord, S. J., Velle, K. B., Mullins, R. D. & Fritz-Laylin, L. K. (2020). SuperPlots: communicating
+reproducibility and variability in cell biology. J. Cell Biol. 219:e202001064 (cells as faint points,
+replicate means as the units).
+Okabe, M. & Ito, K. (2008). Color Universal Design (CUD): how to make figures and presentations that
+are friendly to colorblind people. J*Fly (web publication; palette values from memory).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Hashable, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+import logstats
+
+__all__ = ["OKABE_ITO", "groups", "hist", "plot_groups", "plot_hist", "plot_qq", "qq"]
+
+#: Okabe & Ito (2008) colour-blind-safe palette, the pale yellow moved towards the end (blue, orange,
+#: bluish green, vermillion, reddish purple, sky blue, yellow, black).
+OKABE_ITO: tuple[str, ...] = (
+    "#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#F0E442", "#000000",
+)
+
+_POLICIES = ("raise", "drop", "nan")
+_CLOUD_OFFSET = 0.1  # the points of group i are centred at i - 0.1 ...
+_EST_OFFSET = 0.3  # ... and its estimate with its interval drawn at i + 0.3
+
+
+# --------------------------------------------------------------------------------------------------
+# input handling (labels only)
+
+
+@dataclass
+class _Data:
+    """A tidy frame with the value column and, optionally, a group and a replicate column."""
+
+    frame: pd.DataFrame
+    value: str
+    by: str | None
+    replicate: str | None
+    units: str | None
+
+    @property
+    def label(self) -> str:
+        return f"{self.value} ({self.units})" if self.units else str(self.value)
+
+    def group_labels(self) -> list[Any]:
+        if self.by is None:
+            return [None]
+        _, uniques = pd.factorize(self.frame[self.by], sort=True)
+        return list(uniques)
+
+    def group_masks(self) -> list[tuple[Any, np.ndarray]]:
+        if self.by is None:
+            return [(None, np.ones(len(self.frame), dtype=bool))]
+        codes, uniques = pd.factorize(self.frame[self.by], sort=True)
+        return [(g, codes == i) for i, g in enumerate(uniques)]
+
+
+def _aligned_key(obj: pd.Series | pd.DataFrame, key: Any, keyword: str) -> tuple[str, pd.Series]:
+    """A grouping key for a Series/DataFrame: a column, an index level, or an aligned Series/array."""
+    if isinstance(key, pd.Series):
+        s = key if key.index.equals(obj.index) else key.reindex(obj.index)
+        return (str(key.name) if key.name is not None else keyword), s
+    if isinstance(key, (np.ndarray, pd.Index, list, tuple)) and not isinstance(key, str):
+        arr = np.asarray(key)
+        if len(arr) != len(obj):
+            raise ValueError(f"{keyword}= has length {len(arr)}, the data has {len(obj)} rows")
+        return keyword, pd.Series(arr, index=obj.index)
+    if isinstance(obj, pd.DataFrame) and key in obj.columns:
+        return str(key), obj[key]
+    if key in [n for n in obj.index.names if n is not None]:
+        return str(key), pd.Series(obj.index.get_level_values(key), index=obj.index)
+    where = list(obj.columns) if isinstance(obj, pd.DataFrame) else list(obj.index.names)
+    raise KeyError(f"{keyword}={key!r} is not a column or index level; there are {where!r}")
+
+
+def _units_of(obj: Any, value: str, units: str | None) -> str | None:
+    if units is not None:
+        return units
+    attrs = getattr(obj, "attrs", {}) or {}
+    u = attrs.get("units")
+    if isinstance(u, dict):
+        u = u.get(value)
+    return str(u) if u else None
+
+
+def _prepare(obj: Any, value: Hashable | None, by: Any, replicate: Any, dim: Any,
+             units: str | None) -> _Data:
+    import xarray as xr
+
+    if isinstance(obj, xr.Dataset):
+        numeric = [k for k, v in obj.data_vars.items() if v.dtype.kind in "fiu"]
+        if value is None and len(numeric) == 1:
+            value = numeric[0]
+        if value is None or value not in obj.data_vars:
+            raise KeyError(f"value={value!r} must name a data variable of the Dataset; there are {numeric!r}")
+        obj = obj[value]
+    if isinstance(obj, xr.DataArray):
+        return _prepare_array(obj, by, replicate, dim, units)
+    if isinstance(obj, pd.Series):
+        name = str(obj.name) if obj.name is not None else "value"
+        cols: dict[str, Any] = {name: obj.reset_index(drop=True)}
+        bname = rname = None
+        if by is not None:
+            bname, key = _aligned_key(obj, by, "by")
+            cols[bname] = key.reset_index(drop=True)
+        if replicate is not None:
+            rname, key = _aligned_key(obj, replicate, "replicate")
+            cols[rname] = key.reset_index(drop=True)
+        return _Data(pd.DataFrame(cols), name, bname, rname, _units_of(obj, name, units))
+    if isinstance(obj, pd.DataFrame):
+        keys = []
+        bname = rname = None
+        cols = {}
+        if by is not None:
+            bname, key = _aligned_key(obj, by, "by")
+            cols[bname] = key.reset_index(drop=True)
+            keys.append(bname)
+        if replicate is not None:
+            rname, key = _aligned_key(obj, replicate, "replicate")
+            cols[rname] = key.reset_index(drop=True)
+            keys.append(rname)
+        if value is None:
+            numeric = [c for c in obj.columns if c not in keys and pd.api.types.is_numeric_dtype(obj[c])
+                       and not pd.api.types.is_bool_dtype(obj[c])]
+            if len(numeric) != 1:
+                raise ValueError(
+                    f"value= is needed to choose the column to plot; numeric columns: {numeric!r}"
+                )
+            value = numeric[0]
+        if value not in obj.columns:
+            raise KeyError(f"value={value!r} is not a column; there are {list(obj.columns)!r}")
+        s = obj[value]
+        if not pd.api.types.is_numeric_dtype(s.dtype) or pd.api.types.is_bool_dtype(s.dtype):
+            raise TypeError(
+                f"column {value!r} has dtype {s.dtype}, which is not numeric; logstats needs positive "
+                "numbers (convert it with pd.to_numeric or choose another value=)"
+            )
+        frame = pd.DataFrame({str(value): s.reset_index(drop=True), **cols})
+        return _Data(frame, str(value), bname, rname, _units_of(obj, str(value), units))
+    raise TypeError(
+        f"plotting needs a pandas Series, a DataFrame or an xarray DataArray, got {type(obj).__name__}"
+    )
+
+
+def _prepare_array(da: Any, by: Any, replicate: Any, dim: Any, units: str | None) -> _Data:
+    name = str(da.name) if da.name is not None else "value"
+    if da.dtype.kind not in "fiu":
+        raise TypeError(f"variable {name!r} has dtype {da.dtype}, which is not numeric")
+    for key, kw in ((by, "by"), (replicate, "replicate")):
+        if key is not None and key not in da.coords:
+            raise KeyError(f"{kw}={key!r} is not a coordinate; there are {list(da.coords)!r}")
+    if dim is not None:
+        dims = [dim] if isinstance(dim, str) else list(dim)
+        missing = [d for d in dims if d not in da.dims]
+        if missing:
+            raise ValueError(f"dim {missing!r} not found; the data has dims {list(da.dims)!r}")
+        others = [d for d in da.dims if d not in dims and da.sizes[d] > 1]
+        if others:
+            raise ValueError(
+                f"plotting along dim={dim!r} would pool the {others[0]!r} dim ({da.sizes[others[0]]} "
+                f"entries); select one first, e.g. da.isel({others[0]}=0), or pass dim=None to pool all"
+            )
+    for key, kw in ((by, "by"), (replicate, "replicate")):
+        if key is not None and dim is not None:
+            cdims = da.coords[key].dims
+            if any(d not in dims for d in cdims):
+                raise ValueError(f"{kw}={key!r} lies along {cdims}, not along dim={dim!r}")
+    flat = da.to_dataframe(name="__value__").reset_index()
+    cols = {name: flat["__value__"].to_numpy()}
+    if by is not None:
+        cols[str(by)] = flat[by].to_numpy()
+    if replicate is not None:
+        cols[str(replicate)] = flat[replicate].to_numpy()
+    return _Data(pd.DataFrame(cols), name, None if by is None else str(by),
+                 None if replicate is None else str(replicate), _units_of(da, name, units))
+
+
+def _palette(palette: str | Sequence[Any] | None) -> list[str]:
+    """The colours to cycle through, as hex strings (so one colour is never read as RGB values)."""
+    from matplotlib.colors import to_hex
+
+    if palette is None or palette == "default":
+        import matplotlib as mpl
+
+        colours = list(mpl.rcParams["axes.prop_cycle"].by_key().get("color", OKABE_ITO))
+    elif isinstance(palette, str) and palette in ("colorblind", "okabe-ito"):
+        colours = list(OKABE_ITO)
+    elif isinstance(palette, str):
+        raise ValueError(f"palette={palette!r} is not 'default', 'colorblind' or a list of colours")
+    else:
+        colours = list(palette)
+    if not colours:
+        raise ValueError("palette= is an empty list of colours")
+    return [to_hex(c, keep_alpha=False) for c in colours]
+
+
+def _check_policy(nonpositive: str) -> str:
+    if nonpositive not in _POLICIES:
+        raise ValueError(f"nonpositive={nonpositive!r} is not one of 'raise', 'drop', 'nan'")
+    return nonpositive
+
+
+def _log(x: Any) -> np.ndarray:
+    return np.asarray(logstats.log(np.asarray(x, dtype=np.float64), nonpositive="nan"))
+
+
+def _exp(y: Any) -> np.ndarray:
+    return np.asarray(logstats.exp(np.asarray(y, dtype=np.float64)))
+
+
+def _logs(data: _Data, nonpositive: str) -> np.ndarray:
+    """Natural logs of the value column through the library's transform (NaN where not usable).
+
+    ``nonpositive="raise"`` refuses zeros and negatives with the library's message (naming the
+    column and the count); the other policies leave NaN in their place.
+    """
+    logged = data.frame[[data.value]].logstats.log(columns=data.value, nonpositive=nonpositive)
+    return logged[data.value].to_numpy(dtype=np.float64)
+
+
+def _by_group(res: pd.DataFrame | pd.Series, data: _Data) -> pd.DataFrame:
+    """A per-group result in the order of :meth:`_Data.group_masks`, indexed 0, 1, …"""
+    frame = res.to_frame().T if isinstance(res, pd.Series) else res
+    if data.by is None:
+        return frame.reset_index(drop=True)
+    return frame.reindex(pd.Index(data.group_labels())).reset_index(drop=True)
+
+
+def _group_name(g: Any) -> str:
+    return "all" if g is None else str(g)
+
+
+def _fits(data: _Data, *, detection_limit: Any, nonpositive: str) -> pd.DataFrame:
+    """Per-group log-normal MLE ``mu``, ``sigma`` (ddof=0), ``n`` and ``n_censored``, from ``fit()``."""
+    kw: dict[str, Any] = {"columns": data.value}
+    if detection_limit is not None:
+        kw["detection_limit"] = detection_limit
+    else:
+        kw["nonpositive"] = nonpositive
+    res = _by_group(data.frame.logstats.fit(by=data.by, **kw), data)
+    return res[["mu", "sigma", "n"] + [c for c in ("n_censored",) if c in res.columns]]
+
+
+def _linear(data: _Data, nonpositive: str) -> pd.DataFrame:
+    res = data.frame.logstats.summary(by=data.by, columns=data.value, linear=True,
+                                      nonpositive="drop" if nonpositive == "raise" else nonpositive)
+    return _by_group(res, data)
+
+
+def _finish_axes(ax: Any) -> None:
+    ax.spines[["top", "right"]].set_visible(False)
+
+
+# --------------------------------------------------------------------------------------------------
+# histogram
+
+
+def hist(
+    obj: Any,
+    value: Hashable | None = None,
+    *,
+    by: Any = None,
+    dim: Any = None,
+    bins: int | None = None,
+    layout: str = "overlay",
+    normal: bool = False,
+    stat: str = "density",
+    detection_limit: Any = None,
+    nonpositive: str = "raise",
+    palette: str | Sequence[str] | None = None,
+    units: str | None = None,
+    title: str | None = None,
+    ax: Any = None,
+) -> Any:
+    """Histogram on log-spaced bins with the fitted log-normal density overlaid.
+
+    The bins are equal steps of ln x, shared by all groups, drawn on a logarithmic x-axis. With
+    ``stat="density"`` a bar's height is the fraction of the group's values in it divided by the
+    bin's width in ln x, i.e. a density per unit of ln x; a log-normal then draws as a bell curve,
+    the normal density ``φ(ln x; μ, σ)`` with the maximum-likelihood ``μ``, ``σ`` (``ddof=0``) of
+    ``.logstats.fit()``. With ``detection_limit`` the fit is left-censored, only detected values are
+    binned (normalised by the group's total count, so the bars match the fitted curve) and the limit
+    is marked. ``normal=True`` adds the normal distribution fitted to the linear values (mean and SD
+    with ``ddof=1``), transformed to the same per-ln-x scale (``x · φ(x; m, s)``).
+
+    Parameters
+    ----------
+    obj : Series, DataFrame, DataArray or Dataset
+        The data; for a DataFrame ``value`` names the column (for a Dataset the variable), for a
+        DataArray ``dim`` the dim(s) pooled (other dims must be selected first when ``dim`` is
+        given; ``dim=None`` pools all).
+    value : column name, optional
+        Needed for a DataFrame with more than one numeric column.
+    by : column, index level, aligned Series, or coordinate name, optional
+        One histogram per group.
+    bins : int, optional
+        Number of bins (default: numpy's ``"auto"`` rule on the logs, kept between 10 and 60).
+    layout : {"overlay", "panels"}
+        Groups overlaid on one Axes, or as small multiples sharing both axes.
+    normal : bool, default False
+        Also draw the normal fit (dashed).
+    stat : {"density", "count"}
+        Density per unit of ln x, or counts per bin (the curves scaled to match).
+    detection_limit : number or column name, optional
+        Passed to ``.logstats.fit()``; values at or below it are non-detects.
+    nonpositive : {"raise", "drop", "nan"}
+        Zeros and negatives: refuse (naming the column and count), or leave them out (counted in
+        the legend).
+    palette : "default", "colorblind" or list of colours, optional
+    units : str, optional
+        Units for the axis label (default: ``attrs["units"]`` of the data, if any).
+    ax : matplotlib Axes or array of Axes, optional
+        Draw here: one Axes overlays all groups; an array of Axes takes one group each.
+
+    Returns
+    -------
+    matplotlib.axes.Axes, or numpy.ndarray of Axes for ``layout="panels"``.
+
+    References
+    ----------
+    Limpert, E., Stahel, W. A. & Abbt, M. (2001). BioScience 51:341-352 (log-normal densities on a
+    logarithmic axis).
+    """
+    import matplotlib.pyplot as plt
+
+    _check_policy(nonpositive)
+    if layout not in ("overlay", "panels"):
+        raise ValueError(f"layout={layout!r} is not 'overlay' or 'panels'")
+    if stat not in ("density", "count"):
+        raise ValueError(f"stat={stat!r} is not 'density' or 'count'")
+    data = _prepare(obj, value, by, None, dim, units)
+    if detection_limit is not None and isinstance(detection_limit, str):
+        if not isinstance(obj, pd.DataFrame) or detection_limit not in obj.columns:
+            raise KeyError(f"detection_limit={detection_limit!r} is not a column of the data")
+        data.frame[detection_limit] = obj[detection_limit].to_numpy()
+    y = _logs(data, "drop" if detection_limit is not None else nonpositive)
+    fits = _fits(data, detection_limit=detection_limit, nonpositive=nonpositive)
+    lin = _linear(data, nonpositive) if normal else None
+    counts = _by_group(data.frame.logstats.moments(by=data.by, columns=data.value, nonpositive="drop"),
+                       data)
+
+    detected = np.isfinite(y)
+    if detection_limit is not None:
+        dl = (data.frame[detection_limit].to_numpy(dtype=float) if isinstance(detection_limit, str)
+              else np.full(len(y), float(detection_limit)))
+        ldl = _log(dl)
+        detected &= ~(y <= ldl)
+    if not detected.any():
+        raise ValueError(f"column {data.value!r} has no positive values to plot")
+    lo, hi = float(np.min(y[detected])), float(np.max(y[detected]))
+    if hi <= lo:
+        lo, hi = lo - 0.5, hi + 0.5
+    if bins is None:
+        auto = np.histogram_bin_edges(y[detected], bins="auto")
+        bins = int(np.clip(len(auto) - 1, 10, 60))
+    edges = np.linspace(lo, hi, int(bins) + 1)
+    width = float(edges[1] - edges[0])
+    pad = 0.15 * (hi - lo)
+    glo, ghi = lo - pad, hi + pad
+    if detection_limit is not None:  # show the fitted curve below the limit too, to mu - 3 sigma
+        mus, sds = fits["mu"].to_numpy(dtype=float), fits["sigma"].to_numpy(dtype=float)
+        reach = mus - 3.0 * sds
+        if np.isfinite(reach).any():
+            glo = min(glo, float(np.nanmin(reach)))
+    grid = np.linspace(glo, ghi, 400)
+    xgrid = _exp(grid)
+
+    masks = data.group_masks()
+    colors = _palette(palette)
+    if ax is None:
+        if layout == "panels" and len(masks) > 1:
+            ncols = int(np.ceil(np.sqrt(len(masks))))
+            nrows = int(np.ceil(len(masks) / ncols))
+            fig, axs = plt.subplots(nrows, ncols, sharex=True, sharey=True, squeeze=False,
+                                    figsize=(3.6 * ncols, 2.8 * nrows), layout="constrained")
+            axes = list(axs.ravel())
+            for extra in axes[len(masks):]:
+                extra.set_visible(False)
+        else:
+            fig, one = plt.subplots(figsize=(8.4, 4.2), layout="constrained")
+            axes = [one]
+            layout = "overlay"
+    elif isinstance(ax, (np.ndarray, list, tuple)):
+        axes = list(np.ravel(ax))
+        if len(axes) < len(masks):
+            raise ValueError(f"ax= holds {len(axes)} Axes for {len(masks)} groups")
+        for extra in axes[len(masks):]:
+            extra.set_visible(False)
+        layout = "panels"
+    else:
+        axes = [ax]
+        layout = "overlay"
+    from matplotlib.lines import Line2D
+
+    for i, (g, mask) in enumerate(masks):
+        a = axes[i] if layout == "panels" else axes[0]
+        c = colors[i % len(colors)]
+        n_total = int(np.nan_to_num(fits["n"].iloc[i]))
+        yi = y[mask & detected]
+        cnt, _ = np.histogram(yi, bins=edges)
+        scale = n_total * width if stat == "density" else 1.0
+        heights = cnt / scale if scale > 0 else cnt * np.nan
+        n_nonpos = int(counts["n_nonpositive"].iloc[i]) if detection_limit is None else 0
+        label = f"{_group_name(g)} (n = {n_total}"
+        if n_nonpos and nonpositive != "raise":
+            label += f", {n_nonpos} ≤ 0 left out"
+        if detection_limit is not None and "n_censored" in fits.columns:
+            label += f", {int(fits['n_censored'].iloc[i])} censored"
+        label += ")"
+        a.stairs(heights, _exp(edges), fill=True, alpha=0.25 if layout == "overlay" else 0.45,
+                 color=c, label=label, gid=f"bars-{i}")
+        a.stairs(heights, _exp(edges), color=c, linewidth=1.0)
+        mu, sigma = float(fits["mu"].iloc[i]), float(fits["sigma"].iloc[i])
+        curve_scale = 1.0 if stat == "density" else n_total * width
+        if np.isfinite(mu) and np.isfinite(sigma) and sigma > 0:
+            a.plot(xgrid, stats.norm.pdf(grid, mu, sigma) * curve_scale, color=c, linewidth=2.0,
+                   gid="lognormal-fit")
+        if lin is not None:
+            m, s = float(lin["mean"].iloc[i]), float(lin["sd"].iloc[i])
+            if np.isfinite(m) and np.isfinite(s) and s > 0:
+                a.plot(xgrid, xgrid * stats.norm.pdf(xgrid, m, s) * curve_scale, color=c, linewidth=1.5,
+                       linestyle="--", gid="normal-fit")
+        if layout == "panels":
+            a.set_title(label, fontsize="small")
+    if detection_limit is not None:
+        for i, (_g, mask) in enumerate(masks):
+            a = axes[i] if layout == "panels" else axes[0]
+            limits = np.unique(dl[mask & np.isfinite(dl)])
+            for k, lim in enumerate(limits[:5]):  # a few distinct limits are marked, not hundreds
+                a.axvline(float(lim), color="0.3", linestyle=":", linewidth=1.2, gid="detection-limit",
+                          label="detection limit" if (k == 0 and (i == 0 or layout == "panels")) else None)
+    ylabel = "density per unit of ln x" if stat == "density" else "count per bin"
+    used = axes[: len(masks)] if layout == "panels" else axes[:1]
+    for a in used:
+        a.set_xscale("log")
+        _finish_axes(a)
+    for a in used:
+        if layout != "panels" or a.get_subplotspec() is None or a.get_subplotspec().is_last_row():
+            a.set_xlabel(f"{data.label}, log scale")
+        if layout != "panels" or a.get_subplotspec() is None or a.get_subplotspec().is_first_col():
+            a.set_ylabel(ylabel)
+    proxies = [Line2D([], [], color="0.2", linewidth=2.0, label="log-normal fit (MLE)")]
+    if normal:
+        proxies.append(Line2D([], [], color="0.2", linewidth=1.5, linestyle="--", label="normal fit"))
+    first = used[0]
+    fig = first.figure
+    if layout == "panels":
+        if detection_limit is not None:
+            proxies.append(Line2D([], [], color="0.3", linestyle=":", label="detection limit"))
+        fig.legend(handles=proxies, loc="outside lower center", ncols=len(proxies), fontsize="small",
+                   frameon=False)
+    else:
+        handles, _ = first.get_legend_handles_labels()
+        first.legend(handles=handles + proxies, fontsize="small", frameon=False, loc="upper left",
+                     bbox_to_anchor=(1.0, 1.0))
+    if title is not None:
+        fig.suptitle(title) if layout == "panels" else first.set_title(title)
+    elif layout == "overlay":
+        first.set_title(f"{data.value}: log-binned histogram with fitted densities", fontsize="medium")
+    return np.array(used, dtype=object) if layout == "panels" else first
+
+
+# --------------------------------------------------------------------------------------------------
+# points per group
+
+
+def groups(
+    obj: Any,
+    value: Hashable | None = None,
+    by: Any = None,
+    replicate: Any = None,
+    *,
+    dim: Any = None,
+    confidence_level: float = 0.95,
+    nonpositive: str = "raise",
+    jitter: float = 0.22,
+    point_alpha: float | None = None,
+    max_points: int | None = 2500,
+    seed: int = 0,
+    palette: str | Sequence[str] | None = None,
+    units: str | None = None,
+    title: str | None = None,
+    ax: Any = None,
+) -> Any:
+    """Every value as a faint jittered point on a log axis, with replicate and group geometric means.
+
+    Each group of ``by`` is one column of points. With ``replicate`` (well, animal, day …) the
+    geometric mean of each replicate is a large marker in the replicate's colour, and the group's
+    estimate, drawn as a black bar with its interval, is the geometric mean of the replicate means
+    ×/÷ its t confidence interval with the replicates as the units (Lord et al. 2020). Without
+    ``replicate`` the interval is that of the values themselves (``.logstats.summary()``).
+
+    Parameters
+    ----------
+    obj : Series, DataFrame or DataArray
+    value : column name, optional
+    by : column, index level, aligned Series, or coordinate name
+        The groups along the horizontal axis.
+    replicate : same kinds as ``by``, optional
+        The experimental unit within each group.
+    confidence_level : float, default 0.95
+    nonpositive : {"raise", "drop", "nan"}
+        Zeros and negatives: refuse, or leave them out (their count is shown under the group).
+    jitter : float, default 0.22
+        Half-width of the horizontal jitter, in group spacings.
+    point_alpha : float, optional
+        Opacity of the points (default chosen from their number).
+    max_points : int or None, default 2500
+        Draw at most this many points per group (a reproducible random subset, ``seed``); the
+        estimates always use every value. None draws all.
+    seed : int, default 0
+        Seed of the jitter and subset, so a figure is reproducible.
+    palette, units, title, ax
+        As in :func:`hist`.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+
+    References
+    ----------
+    Lord, S. J., Velle, K. B., Mullins, R. D. & Fritz-Laylin, L. K. (2020). SuperPlots:
+    communicating reproducibility and variability in cell biology. J. Cell Biol. 219:e202001064.
+    Limpert, E., Stahel, W. A. & Abbt, M. (2001). BioScience 51:341-352 (×/÷ intervals).
+    """
+    import matplotlib.pyplot as plt
+    from matplotlib.lines import Line2D
+
+    _check_policy(nonpositive)
+    if by is None:
+        raise ValueError("groups() needs by= (the column or coordinate whose levels are compared)")
+    data = _prepare(obj, value, by, replicate, dim, units)
+    df = data.frame
+    policy = "drop" if nonpositive == "raise" else nonpositive
+    y = _logs(data, nonpositive)  # raises for non-positive values under "raise"
+    usable = np.isfinite(y)
+    if data.replicate is not None:
+        rep = df.logstats.gmean(by=[data.by, data.replicate], columns=data.value, nonpositive=policy)
+        rep_s = rep[data.value] if isinstance(rep, pd.DataFrame) else rep
+        est = _by_group(rep_s.dropna().logstats.summary(by=data.by, confidence_level=confidence_level),
+                        data)
+    else:
+        rep_s = None
+        est = _by_group(df.logstats.summary(by=data.by, columns=data.value,
+                                            confidence_level=confidence_level, nonpositive=policy), data)
+    cells = _by_group(df.logstats.moments(by=data.by, columns=data.value, nonpositive="drop"), data)
+
+    colors = _palette(palette)
+    rng = np.random.default_rng(seed)
+    if ax is None:
+        fig, ax = plt.subplots(figsize=(max(5.0, 1.6 * len(data.group_labels()) + 3.2), 4.4),
+                               layout="constrained")
+    rep_labels: list[Any] = []
+    shared_colors = False
+    if data.replicate is not None:
+        rep_codes, rep_uniques = pd.factorize(df[data.replicate], sort=True)
+        rep_labels = list(rep_uniques)
+        shared_colors = len(rep_labels) <= len(colors)
+    ticklabels = []
+    for i, (g, mask) in enumerate(data.group_masks()):
+        idx = np.flatnonzero(mask & usable)
+        if max_points is not None and idx.size > max_points:
+            idx = np.sort(rng.choice(idx, size=max_points, replace=False))
+        xs = i - _CLOUD_OFFSET + rng.uniform(-jitter, jitter, size=idx.size)
+        vals = df[data.value].to_numpy(dtype=float)[idx]
+        alpha = point_alpha if point_alpha is not None else float(np.clip(12.0 / np.sqrt(max(idx.size, 1)),
+                                                                           0.08, 0.6))
+        if data.replicate is not None:
+            if shared_colors:
+                pc = [colors[k % len(colors)] for k in rep_codes[idx]]
+            else:
+                ranks = pd.factorize(df[data.replicate].to_numpy()[idx], sort=True)[0]
+                pc = [colors[k % len(colors)] for k in ranks]
+        else:
+            pc = [colors[i % len(colors)]]
+        colour_kw = {"color": pc[0]} if len(pc) == 1 else {"c": pc}
+        ax.scatter(xs, vals, s=5, alpha=alpha, linewidths=0, rasterized=True, zorder=1,
+                   gid=f"points-{i}", **colour_kw)
+        if rep_s is not None:
+            level = str(data.by)
+            sub = rep_s.xs(g, level=level) if g in rep_s.index.get_level_values(level) else rep_s.iloc[:0]
+            sub = sub.dropna()
+            rj = i - _CLOUD_OFFSET + rng.uniform(-jitter * 0.5, jitter * 0.5, size=len(sub))
+            if shared_colors:
+                mc = [colors[rep_labels.index(r) % len(colors)] for r in sub.index]
+            else:
+                mc = [colors[k % len(colors)] for k in range(len(sub))]
+            ax.scatter(rj, sub.to_numpy(dtype=float), s=60, c=mc, edgecolors="black", linewidths=0.8,
+                       zorder=6, gid=f"replicates-{i}")
+        gm = float(est["gmean"].iloc[i])
+        lo, hi = float(est["ci_low"].iloc[i]), float(est["ci_high"].iloc[i])
+        xe = i + _EST_OFFSET
+        ax.hlines(gm, i - _CLOUD_OFFSET - jitter, xe + 0.08, colors="black", linewidth=0.8, zorder=4,
+                  alpha=0.6)
+        if np.isfinite(lo) and np.isfinite(hi):
+            ax.vlines(xe, lo, hi, colors="black", linewidth=1.8, zorder=4, gid=f"interval-{i}")
+            ax.hlines([lo, hi], xe - 0.06, xe + 0.06, colors="black", linewidth=1.8, zorder=4)
+        ax.plot([xe], [gm], marker="D", markersize=6, color="black", zorder=5, gid=f"estimate-{i}")
+        n_cells = int(cells["n"].iloc[i])
+        n_np = int(cells["n_nonpositive"].iloc[i])
+        line = f"{_group_name(g)}\n"
+        if rep_s is not None:
+            line += f"{int(np.nan_to_num(est['n'].iloc[i]))} × {data.replicate}, {n_cells} values"
+        else:
+            line += f"n = {n_cells}"
+        if n_np:
+            line += f"\n{n_np} ≤ 0 left out"
+        ticklabels.append(line)
+    ax.set_yscale("log")
+    ax.set_xticks(range(len(ticklabels)))
+    ax.set_xticklabels(ticklabels, fontsize="small")
+    ax.set_xlim(-0.5 - _CLOUD_OFFSET, len(ticklabels) - 0.5 + _CLOUD_OFFSET / 2)
+    ax.set_ylabel(f"{data.label}, log scale")
+    ax.set_xlabel(str(data.by))
+    _finish_axes(ax)
+    pct = f"{100 * confidence_level:g} %"
+    handles = [Line2D([], [], marker="o", linestyle="", markersize=3, color="0.5", alpha=0.6,
+                      label="values")]
+    if rep_s is not None:
+        handles.append(Line2D([], [], marker="o", linestyle="", markersize=8, markerfacecolor="0.7",
+                              markeredgecolor="black", label=f"{data.replicate} geometric means"))
+        est_label = f"geometric mean of {data.replicate} means ×/÷ {pct} CI"
+    else:
+        est_label = f"geometric mean ×/÷ {pct} CI"
+    handles.append(Line2D([], [], color="black", linewidth=1.8, marker="D", markersize=5, label=est_label))
+    ax.legend(handles=handles, fontsize="small", frameon=False, loc="upper left", bbox_to_anchor=(1.0, 1.0))
+    ax.set_title(title if title is not None else f"{data.value} by {data.by}", fontsize="medium")
+    return ax
+
+
+# --------------------------------------------------------------------------------------------------
+# probability plots
+
+
+def qq(
+    obj: Any,
+    value: Hashable | None = None,
+    *,
+    by: Any = None,
+    dim: Any = None,
+    raw: bool | None = None,
+    nonpositive: str = "raise",
+    max_points: int | None = 3000,
+    palette: str | Sequence[str] | None = None,
+    units: str | None = None,
+    title: str | None = None,
+    ax: Any = None,
+) -> Any:
+    """Normal probability plot of the logs, and of the raw values beside it.
+
+    Ordered values against standard normal quantiles (``scipy.stats.probplot``, with its
+    least-squares line). Log-normal data fall on a straight line in the left panel (drawn on a
+    logarithmic value axis, i.e. the logs) and curve upward in the right panel (linear values).
+
+    Parameters
+    ----------
+    obj, value, by, dim
+        As in :func:`hist`; each group gets its own colour.
+    raw : bool, optional
+        Add the panel of the raw values. Default: True when ``ax`` is None or a pair of Axes,
+        False when a single Axes is given.
+    nonpositive : {"raise", "drop", "nan"}
+        Zeros and negatives: refuse, or leave them out of the log panel (the raw panel keeps them).
+    max_points : int or None, default 3000
+        At most this many points drawn per group and panel (evenly spaced in rank, so the tails are
+        kept); the lines use every value.
+    palette, units, title
+        As in :func:`hist`.
+    ax : Axes or pair of Axes, optional
+
+    Returns
+    -------
+    matplotlib.axes.Axes (logs only) or numpy.ndarray of two Axes ``[logs, raw]``.
+    """
+    import matplotlib.pyplot as plt
+
+    _check_policy(nonpositive)
+    data = _prepare(obj, value, by, None, dim, units)
+    y = _logs(data, nonpositive)
+    x = data.frame[data.value].to_numpy(dtype=float)
+    if raw is None:
+        raw = ax is None or isinstance(ax, (np.ndarray, list, tuple))
+    if ax is None:
+        fig, axs = plt.subplots(1, 2 if raw else 1, figsize=(9.6 if raw else 5.0, 4.0), squeeze=False,
+                                layout="constrained")
+        axes = list(axs.ravel())
+    elif isinstance(ax, (np.ndarray, list, tuple)):
+        axes = list(np.ravel(ax))
+        if raw and len(axes) < 2:
+            raise ValueError("raw=True needs a pair of Axes in ax=")
+    else:
+        if raw:
+            raise ValueError("raw=True needs a pair of Axes in ax= (or pass raw=False)")
+        axes = [ax]
+    colors = _palette(palette)
+    for i, (g, mask) in enumerate(data.group_masks()):
+        c = colors[i % len(colors)]
+        yi = y[mask & np.isfinite(y)]
+        if yi.size >= 2:
+            (osm, osr), (slope, intercept, _r) = stats.probplot(yi, dist="norm")
+            keep = _thin(osm.size, max_points)
+            axes[0].plot(osm[keep], _exp(osr[keep]), ".", markersize=3, color=c, alpha=0.6,
+                         label=f"{_group_name(g)} (n = {yi.size})")
+            axes[0].plot(osm[[0, -1]], _exp(intercept + slope * osm[[0, -1]]), color=c, linewidth=1.2)
+        if raw:
+            xi = x[mask & np.isfinite(x)]
+            if xi.size >= 2:
+                (osm, osr), (slope, intercept, _r) = stats.probplot(xi, dist="norm")
+                keep = _thin(osm.size, max_points)
+                axes[1].plot(osm[keep], osr[keep], ".", markersize=3, color=c, alpha=0.6)
+                axes[1].plot(osm[[0, -1]], intercept + slope * osm[[0, -1]], color=c, linewidth=1.2)
+    axes[0].set_yscale("log")
+    axes[0].set_xlabel("standard normal quantile")
+    axes[0].set_ylabel(f"{data.label}, log scale")
+    axes[0].set_title("logs: straight if log-normal", fontsize="medium")
+    handles, _ = axes[0].get_legend_handles_labels()
+    if handles:
+        axes[0].legend(fontsize="small", frameon=False)
+    _finish_axes(axes[0])
+    if raw:
+        axes[1].set_xlabel("standard normal quantile")
+        axes[1].set_ylabel(data.label)
+        axes[1].set_title("raw values: straight if normal", fontsize="medium")
+        _finish_axes(axes[1])
+    if title is not None:
+        axes[0].figure.suptitle(title)
+    return np.array(axes[:2], dtype=object) if raw else axes[0]
+
+
+def _thin(n: int, max_points: int | None) -> np.ndarray:
+    if max_points is None or n <= max_points:
+        return np.arange(n)
+    return np.unique(np.linspace(0, n - 1, max_points).round().astype(np.intp))
+
+
+#: Names as in the accessor methods (``df.logstats.plot_hist`` delegates to :func:`hist`).
+plot_hist = hist
+plot_groups = groups
+plot_qq = qq

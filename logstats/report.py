@@ -1,0 +1,504 @@
+"""A self-contained HTML report of a log-scale analysis: one file, no network, figures inline.
+
+:func:`build_report` runs the accessors on a table (overview counts, scale check, summary, fold
+changes against a reference, figures) and writes them with a methods paragraph naming the formulas
+and their published sources, and the cautions that apply to clinical, regulatory or safety use.
+Figures are embedded as base64 PNG; the styling is one inline ``<style>`` block; nothing is fetched.
+Every text taken from the data is escaped with :func:`html.escape`.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import io
+from collections.abc import Hashable, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+import logstats
+from logstats.format import TIMES_DIVIDE, format_column, format_times_divide, is_text_column
+
+__all__ = ["REFERENCES", "SECTIONS", "build_report", "reference_first"]
+
+#: The ``id`` of every section, in order.
+SECTIONS: tuple[str, ...] = (
+    "overview", "scale-check", "summary", "comparisons", "figures", "methods", "cautions",
+)
+
+#: The published sources named in the methods paragraph.
+REFERENCES: tuple[str, ...] = (
+    "Akaike, H. (1974). A new look at the statistical model identification. IEEE Transactions on "
+    "Automatic Control 19:716-723.",
+    "Benjamini, Y. & Hochberg, Y. (1995). Controlling the false discovery rate: a practical and "
+    "powerful approach to multiple testing. Journal of the Royal Statistical Society B 57:289-300.",
+    "Cohen, A. C. (1961). Tables for maximum likelihood estimates: singly truncated and singly "
+    "censored samples. Technometrics 3:535-541.",
+    "D'Agostino, R. B. & Pearson, E. S. (1973). Tests for departure from normality. Empirical results "
+    "for the distributions of b2 and \u221ab1. Biometrika 60:613-622.",
+    "Holm, S. (1979). A simple sequentially rejective multiple test procedure. Scandinavian Journal "
+    "of Statistics 6:65-70.",
+    "Kirkwood, T. B. L. (1979). Geometric means and measures of dispersion. Biometrics 35:908-909.",
+    "Limpert, E., Stahel, W. A. & Abbt, M. (2001). Log-normal distributions across the sciences: "
+    "keys and clues. BioScience 51:341-352.",
+    "Lord, S. J., Velle, K. B., Mullins, R. D. & Fritz-Laylin, L. K. (2020). SuperPlots: "
+    "communicating reproducibility and variability in cell biology. Journal of Cell Biology "
+    "219:e202001064.",
+    "NIST/SEMATECH e-Handbook of Statistical Methods, section on the lognormal distribution.",
+    "Schuirmann, D. J. (1987). A comparison of the two one-sided tests procedure and the power "
+    "approach for assessing the equivalence of average bioavailability. Journal of "
+    "Pharmacokinetics and Biopharmaceutics 15:657-680.",
+    "Shapiro, S. S. & Wilk, M. B. (1965). An analysis of variance test for normality (complete "
+    "samples). Biometrika 52:591-611.",
+    "Welch, B. L. (1947). The generalization of \u201cStudent's\u201d problem when several different "
+    "population variances are involved. Biometrika 34:28-35.",
+)
+
+_STYLE = """
+body { font-family: system-ui, -apple-system, "Segoe UI", Helvetica, Arial, sans-serif; margin: 2em auto;
+       max-width: 62em; padding: 0 1em; color: #1d1d1d; line-height: 1.45; }
+h1 { font-size: 1.6em; margin-bottom: 0.2em; }
+h2 { font-size: 1.25em; border-bottom: 1px solid #ccc; padding-bottom: 0.2em; margin-top: 2em; }
+h3 { font-size: 1.05em; margin-bottom: 0.3em; }
+table { border-collapse: collapse; margin: 0.6em 0 1em 0; font-size: 0.9em; }
+th, td { padding: 0.25em 0.7em; border-bottom: 1px solid #e3e3e3; }
+th { background: #f3f3f3; text-align: left; font-weight: 600; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+td.txt { text-align: left; }
+p.note { background: #fff7e0; border-left: 4px solid #e0a000; padding: 0.5em 0.8em; }
+p.muted { color: #666; font-size: 0.9em; }
+figure { margin: 1em 0 2em 0; }
+figure img { max-width: 100%; height: auto; border: 1px solid #eee; }
+figcaption { color: #444; font-size: 0.9em; }
+section#cautions { background: #f6f6f6; padding: 0.2em 1em 0.8em 1em; border-radius: 4px; }
+ol.refs li { margin-bottom: 0.3em; font-size: 0.92em; }
+"""
+
+
+# --------------------------------------------------------------------------------------------------
+# HTML helpers
+
+
+def _e(x: Any) -> str:
+    return html.escape(str(x), quote=True)
+
+
+def _table(df: pd.DataFrame | pd.Series, *, columns: Sequence[str] | None = None, digits: int = 3,
+           times_divide: bool = True, caption: str | None = None) -> str:
+    """A result table as HTML: index levels as the first columns, cells formatted as in the terminal."""
+    if isinstance(df, pd.Series):
+        df = df.to_frame().T
+        df.index = pd.RangeIndex(1)
+    cols = [c for c in (columns if columns is not None else df.columns) if c in df.columns]
+    head: list[str] = []
+    body_cols: list[tuple[list[str], str]] = []
+    idx = df.index
+    if not (isinstance(idx, pd.RangeIndex) and idx.name is None):
+        for level in range(idx.nlevels):
+            head.append("" if idx.names[level] is None else str(idx.names[level]))
+            body_cols.append(([str(v) for v in idx.get_level_values(level)], "txt"))
+    combine = times_divide and "gmean" in cols and "gsd" in cols
+    for c in cols:
+        if combine and c == "gsd":
+            continue
+        if combine and c == "gmean":
+            head.append(f"gmean {TIMES_DIVIDE} gsd")
+            body_cols.append(([format_times_divide(g, f, digits) for g, f in
+                               zip(df["gmean"].to_numpy(), df["gsd"].to_numpy())], "num"))
+            continue
+        head.append(str(c))
+        body_cols.append((format_column(df[c], c, digits=digits),
+                          "txt" if is_text_column(df[c], c) else "num"))
+    out = ["<table>"]
+    if caption:
+        out.append(f"<caption>{_e(caption)}</caption>")
+    out.append("<thead><tr>" + "".join(f"<th>{_e(h)}</th>" for h in head) + "</tr></thead>")
+    out.append("<tbody>")
+    for i in range(len(df)):
+        out.append("<tr>" + "".join(f'<td class="{k}">{_e(cells[i])}</td>' for cells, k in body_cols)
+                   + "</tr>")
+    out.append("</tbody></table>")
+    return "\n".join(out)
+
+
+def _figure_png(draw: Any, *, size: tuple[float, float], nrows: int = 1, ncols: int = 1,
+                alt: str, caption: str) -> str:
+    """Draw on a fresh, pyplot-free Figure and embed it as a base64 PNG ``<figure>``."""
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=size, layout="constrained")
+    axes = fig.subplots(nrows, ncols, squeeze=False, sharex=nrows * ncols > 1, sharey=nrows * ncols > 1)
+    draw(axes)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=96)
+    data = base64.b64encode(buf.getvalue()).decode("ascii")
+    return (f'<figure><img alt="{_e(alt)}" src="data:image/png;base64,{data}">'
+            f"<figcaption>{_e(caption)}</figcaption></figure>")
+
+
+def _as_list(value: Any) -> list[Hashable]:
+    if isinstance(value, (list, tuple)):
+        return list(value)
+    return [value]
+
+
+def _rows_of(res: pd.DataFrame | pd.Series) -> pd.DataFrame:
+    return res.to_frame().T if isinstance(res, pd.Series) else res
+
+
+# --------------------------------------------------------------------------------------------------
+# the report
+
+
+def build_report(
+    df: pd.DataFrame,
+    *,
+    value: Hashable | Sequence[Hashable],
+    by: Hashable | None = None,
+    replicate: Hashable | None = None,
+    reference: Any = None,
+    path: str | Path | None = None,
+    detection_limit: Any = None,
+    nonpositive: str = "raise",
+    confidence_level: float = 0.95,
+    adjust: str | None = "holm",
+    units: str | None = None,
+    title: str | None = None,
+    note: str | None = None,
+    source: str | None = None,
+    figures: bool = True,
+) -> str:
+    """Analyse ``df`` and return (and with ``path``, write) one self-contained HTML report.
+
+    Sections (each a ``<section>`` with the ``id`` in :data:`SECTIONS`): the data overview (rows,
+    groups, and per value column the missing, non-positive and censored counts), the linear-vs-log
+    scale check, the summary table (geometric mean ×/÷ GSD, its t interval, median, mean, SD), the
+    fold changes against ``reference`` (with the replicate as the unit when ``replicate`` is given,
+    and the per-cell answer beside it), the figures (base64 PNG), a methods paragraph naming the
+    formulas and their published sources, and the cautions for clinical, regulatory or safety use.
+
+    Parameters
+    ----------
+    df : DataFrame
+        One row per cell or sample. Not modified.
+    value : column name or list of names
+        The value column(s) analysed.
+    by : column name, optional
+        Group column (e.g. treatment). Needed for comparisons.
+    replicate : column name, optional
+        Experimental unit within each group (well, animal, day …); comparisons then use replicate
+        means (Lord et al. 2020) and the figure shows them.
+    reference : label, optional
+        The level of ``by`` the others are compared with.
+    path : path, optional
+        Write the HTML here (UTF-8) as well as returning it.
+    detection_limit : number or column name, optional
+        For the censored fit and the censored counts; values at or below it are non-detects.
+    nonpositive : {"raise", "drop", "nan"}
+        Zeros and negatives, as in the accessors; the overview always counts them.
+    confidence_level : float, default 0.95
+    adjust : {"holm", "bh", None}
+        Multiplicity adjustment of the comparisons.
+    units : str, optional
+        Units of the values, for figure axes and the overview.
+    title, note, source : str, optional
+        Report title, a highlighted note (e.g. that the data are invented), and the name of the
+        input file shown in the overview.
+    figures : bool, default True
+        False leaves out the figures (no matplotlib needed).
+
+    Returns
+    -------
+    str
+        The HTML document.
+
+    Raises
+    ------
+    KeyError, TypeError, ValueError
+        From the accessors, naming the column at fault (e.g. non-positive values with
+        ``nonpositive="raise"``).
+    """
+    if not isinstance(df, pd.DataFrame):
+        raise TypeError(f"build_report needs a pandas DataFrame, got {type(df).__name__}")
+    values = _as_list(value)
+    missing = [c for c in values + [k for k in (by, replicate) if k is not None] if c not in df.columns]
+    if missing:
+        raise KeyError(f"columns {missing!r} are not in the data; there are {list(df.columns)!r}")
+    if reference is not None and by is None:
+        raise ValueError("reference= needs by= (the column whose levels are compared)")
+    if replicate is not None and by is None:
+        raise ValueError("replicate= needs by= (the column whose levels the replicates belong to)")
+    if isinstance(detection_limit, str) and detection_limit not in df.columns:
+        raise KeyError(f"detection_limit={detection_limit!r} is not a column; there are {list(df.columns)!r}")
+    if reference is not None:
+        df, reference = reference_first(df, by, reference)
+    acc = df.logstats
+    title = title or f"logstats report: {', '.join(map(str, values))}" + (f" by {by}" if by else "")
+
+    parts: list[str] = []
+    parts.append(f"<h1>{_e(title)}</h1>")
+    parts.append(f'<p class="muted">Made with logstats {_e(logstats.__version__)} (numpy '
+                 f"{_e(np.__version__)}, pandas {_e(pd.__version__)}).</p>")
+    if note:
+        parts.append(f'<p class="note">{_e(note)}</p>')
+
+    # ---- overview
+    parts.append('<section id="overview"><h2>Data overview</h2>')
+    src = f" from <code>{_e(source)}</code>" if source else ""
+    n_groups = int(df[by].nunique()) if by is not None else 1
+    desc = f"{len(df)} rows{src}, {len(df.columns)} columns"
+    if by is not None:
+        desc += f"; {n_groups} groups of <code>{_e(by)}</code>"
+        n_nokey = int(df[by].isna().sum())
+        if n_nokey:
+            desc += f" ({n_nokey} rows without a group are left out)"
+    if replicate is not None:
+        n_rep = len(df[[by, replicate]].dropna().drop_duplicates())
+        desc += f"; {n_rep} replicates (<code>{_e(replicate)}</code>)"
+    parts.append(f"<p>{desc}. Values analysed: {', '.join(f'<code>{_e(v)}</code>' for v in values)}"
+                 + (f" ({_e(units)})" if units else "") + ".</p>")
+    counts = acc.moments(by=by, columns=values, nonpositive="drop")
+    counts = _rows_of(counts)
+    show = ["n", "n_missing", "n_nonpositive"]
+    cens = None
+    if detection_limit is not None:
+        cens = _rows_of(acc.fit(by=by, columns=values, detection_limit=detection_limit))
+        if "n_censored" in cens.columns:
+            nc = cens["n_censored"]
+            counts = counts.assign(n_censored=(nc.reindex(counts.index) if not nc.index.equals(counts.index)
+                                               else nc).to_numpy())
+            show.append("n_censored")
+    parts.append(_table(counts, columns=show))
+    parts.append('<p class="muted"><code>n</code>: positive, finite values used; <code>n_missing</code>: '
+                 "empty cells; <code>n_nonpositive</code>: values at or below zero, whose logarithm is "
+                 f"undefined (policy here: <code>nonpositive={_e(repr(nonpositive))}</code>)"
+                 + ("; <code>n_censored</code>: non-detects at or below the detection limit "
+                    f"<code>{_e(detection_limit)}</code>" if "n_censored" in show else "")
+                 + ".</p>")
+    parts.append("</section>")
+
+    # ---- scale check
+    parts.append('<section id="scale-check"><h2>Linear or log scale?</h2>')
+    chk = acc.scale_check(by=by, columns=values, nonpositive=nonpositive)
+    parts.append(_table(chk, columns=["aic_normal", "aic_lognormal", "delta_aic", "preferred",
+                                      "normality_test", "normality_p_linear", "normality_p_log",
+                                      "mean", "gmean", "mean_ratio", "expected_ratio"]))
+    parts.append("<p>The lower AIC marks the better-fitting scale (<code>delta_aic</code> = "
+                 "<code>aic_normal</code> \u2212 <code>aic_lognormal</code>, positive favours the log "
+                 "scale); both AICs are for the data on its original scale. For log-normal data the "
+                 "ratio of the arithmetic to the geometric mean is close to exp(s\u00b2/2) "
+                 "(<code>expected_ratio</code>).</p>")
+    parts.append("</section>")
+
+    # ---- summary
+    parts.append('<section id="summary"><h2>Summary on the log scale</h2>')
+    summ = acc.summary(by=by, columns=values, confidence_level=confidence_level, nonpositive=nonpositive,
+                       linear=True)
+    pct = f"{100 * confidence_level:g}\u00a0%"
+    parts.append(_table(summ, columns=["n", "n_nonpositive", "gmean", "gsd", "gcv", "ci_low", "ci_high",
+                                       "median", "mean", "sd"]))
+    parts.append(f"<p><code>gmean {TIMES_DIVIDE} gsd</code> covers about 68\u00a0% of a log-normal "
+                 f"population; <code>ci_low</code>\u2013<code>ci_high</code> is the {pct} confidence "
+                 "interval of the geometric mean. <code>median</code>, <code>mean</code> and "
+                 "<code>sd</code> are on the linear scale, for comparison.</p>")
+    if replicate is not None:
+        per_rep = acc.gmean(by=[by, replicate], columns=values, nonpositive=nonpositive)
+        rep_col = values[0] if len(values) == 1 else None
+        if rep_col is not None:
+            reps = per_rep[[rep_col]] if isinstance(per_rep, pd.DataFrame) else per_rep.to_frame()
+            summ_rep = reps[rep_col].dropna().logstats.summary(by=by, confidence_level=confidence_level)
+            if not isinstance(summ.index, pd.MultiIndex):
+                summ_rep = summ_rep.reindex(summ.index.intersection(summ_rep.index, sort=False))
+            parts.append(f"<h3>With the replicate (<code>{_e(replicate)}</code>) as the unit</h3>")
+            parts.append(_table(summ_rep, columns=["n", "gmean", "gsd", "ci_low", "ci_high"]))
+            parts.append('<p class="muted"><code>n</code> counts replicates; <code>gmean</code> is the '
+                         "geometric mean of the replicates\u2019 geometric means.</p>")
+    if cens is not None:
+        parts.append(f"<h3>Log-normal fit, left-censored at the detection limit "
+                     f"(<code>{_e(detection_limit)}</code>)</h3>")
+        parts.append(_table(cens, columns=["mu", "sigma", "n", "n_censored", "loglik", "converged"]))
+        parts.append('<p class="muted"><code>mu</code> and <code>sigma</code> are the maximum-likelihood '
+                     "mean and SD (ddof = 0) of the natural logs, non-detects included through the "
+                     "likelihood; exp(<code>mu</code>) estimates the geometric mean. The summary above "
+                     "treats every reported value as measured.</p>")
+    parts.append("</section>")
+
+    # ---- comparisons
+    parts.append('<section id="comparisons"><h2>Comparisons</h2>')
+    cmp_cols = ["ratio", "ci_low", "ci_high", "p_value", "p_adjusted", "n", "n_reference", "n_cells",
+                "n_cells_reference"]
+    if reference is None:
+        parts.append('<p class="muted">No reference level given, so no fold changes were computed '
+                     "(pass <code>reference=</code>).</p>")
+    else:
+        kw = dict(by=by, reference=reference, columns=values, confidence_level=confidence_level,
+                  adjust=adjust, nonpositive=nonpositive)
+        if replicate is not None:
+            fc = acc.fold_change(replicate=replicate, **kw)
+            parts.append(f"<h3>Replicate (<code>{_e(replicate)}</code>) as the unit</h3>")
+            parts.append(_table(_without_reference(fc, by, reference), columns=cmp_cols))
+            cells = acc.fold_change(**kw)
+            parts.append("<h3>Each row as a unit (for contrast only)</h3>")
+            parts.append(_table(_without_reference(cells, by, reference), columns=cmp_cols))
+            parts.append("<p>The per-row answer treats every cell as independent; cells of one "
+                         "replicate share its conditions, so its intervals are too narrow and its "
+                         "p-values too small (pseudo-replication). Use the replicate answer.</p>")
+        else:
+            fc = acc.fold_change(**kw)
+            parts.append(_table(_without_reference(fc, by, reference), columns=cmp_cols))
+        parts.append(f"<p><code>ratio</code> is the geometric mean of each level divided by that of "
+                     f"<code>{_e(reference)}</code>, with its {pct} interval; <code>p_adjusted</code> "
+                     f"controls multiplicity ({_e(adjust)}).</p>")
+    parts.append("</section>")
+
+    # ---- figures
+    parts.append('<section id="figures"><h2>Figures</h2>')
+    if figures:
+        parts.extend(_figures(df, values, by, replicate, detection_limit, nonpositive, confidence_level,
+                              units))
+    else:
+        parts.append('<p class="muted">Figures were left out.</p>')
+    parts.append("</section>")
+
+    parts.append(_methods(replicate is not None, detection_limit is not None, adjust, confidence_level))
+    parts.append(_cautions())
+    parts.append('<section id="references"><h2>References</h2><ol class="refs">'
+                 + "".join(f"<li>{_e(r)}</li>" for r in REFERENCES) + "</ol></section>")
+
+    doc = ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+           f"<title>{_e(title)}</title>\n<style>{_STYLE}</style>\n</head>\n<body>\n"
+           + "\n".join(parts) + "\n</body>\n</html>\n")
+    if path is not None:
+        Path(path).write_text(doc, encoding="utf-8")
+    return doc
+
+
+def reference_first(df: pd.DataFrame, by: Hashable, reference: Any) -> tuple[pd.DataFrame, Any]:
+    """``df`` with the ``reference`` level of ``by`` first (the others sorted), and the matched level.
+
+    A level also matches by its text (``"10"`` finds the number 10), as read from a command line.
+    A categorical ``by`` keeps its own order. The input is not modified (a copy is returned).
+
+    Raises
+    ------
+    ValueError
+        When ``reference`` is not a level of ``by``, listing the levels.
+    """
+    levels = list(pd.unique(df[by].dropna()))
+    match = [lv for lv in levels if lv == reference] or [lv for lv in levels if str(lv) == str(reference)]
+    if not match:
+        shown = ", ".join(repr(v) for v in levels[:12])
+        more = f" and {len(levels) - 12} more" if len(levels) > 12 else ""
+        raise ValueError(f"reference={reference!r} is not a level of {by!r}; its levels are {shown}{more}")
+    ref = match[0]
+    if isinstance(df[by].dtype, pd.CategoricalDtype):
+        return df, ref
+    others = sorted((lv for lv in levels if not (lv == ref)), key=lambda v: (str(type(v)), v))
+    return df.assign(**{str(by): pd.Categorical(df[by], categories=[ref, *others])}), ref
+
+
+def _without_reference(table: pd.DataFrame, by: Hashable, reference: Any) -> pd.DataFrame:
+    idx = table.index
+    if by in (idx.names or []):
+        return table[idx.get_level_values(idx.names.index(by)) != reference]
+    return table
+
+
+def _figures(df: pd.DataFrame, values: list[Hashable], by: Hashable | None, replicate: Hashable | None,
+             detection_limit: Any, nonpositive: str, confidence_level: float, units: str | None) -> list[str]:
+    from logstats import plot
+
+    out = []
+    ngroups = int(df[by].nunique()) if by is not None else 1
+    ncols = int(np.ceil(np.sqrt(ngroups)))
+    nrows = int(np.ceil(ngroups / ncols))
+    for v in values:
+        out.append(f"<h3><code>{_e(v)}</code></h3>")
+        out.append(_figure_png(
+            lambda axes, v=v: plot.hist(df, v, by=by, ax=axes if ngroups > 1 else axes[0, 0],
+                                        normal=True, nonpositive=nonpositive, units=units,
+                                        detection_limit=detection_limit),
+            size=(3.6 * ncols, 2.8 * nrows + 0.5), nrows=nrows, ncols=ncols,
+            alt=f"histogram of {v} on log-spaced bins",
+            caption="Histogram on log-spaced bins with the fitted log-normal density (solid) and the "
+                    "fitted normal density (dashed), per group; a log-normal sample follows the solid "
+                    "curve."))
+        if by is not None:
+            out.append(_figure_png(
+                lambda axes, v=v: plot.groups(df, v, by=by, replicate=replicate, nonpositive=nonpositive,
+                                              confidence_level=confidence_level, units=units,
+                                              ax=axes[0, 0]),
+                size=(max(5.0, 1.6 * ngroups + 3.2), 4.4),
+                alt=f"{v} per group on a log axis",
+                caption="Every value as a faint point on a log axis"
+                        + (f"; large markers are the geometric means of each {replicate}" if replicate
+                           else "")
+                        + f"; the black diamond and bar are the geometric mean \u00d7/\u00f7 its "
+                          f"{100 * confidence_level:g} % confidence interval"
+                        + (f" with the {replicate} as the unit." if replicate else ".")))
+        out.append(_figure_png(
+            lambda axes, v=v: plot.qq(df, v, by=by, nonpositive=nonpositive, units=units,
+                                      ax=axes[0]),
+            size=(9.6, 4.0), ncols=2,
+            alt=f"normal probability plots of {v}: logs and raw values",
+            caption="Normal probability plots: ordered logs (left, log axis) and ordered raw values "
+                    "(right) against normal quantiles. Points on the line mean the scale is the right "
+                    "one."))
+    return out
+
+
+def _methods(with_replicate: bool, with_censoring: bool, adjust: str | None, confidence_level: float) -> str:
+    pct = f"{100 * confidence_level:g}\u00a0%"
+    items = [
+        "All statistics are computed on the natural logarithms y = ln x of the values; zeros and "
+        "negatives have no logarithm and are refused, left out or made NaN as chosen (and always "
+        "counted in the overview).",
+        "Geometric mean GM = exp(\u0233), geometric standard deviation GSD = exp(s), with s the standard "
+        "deviation of the logs with n\u22121 in the denominator (ddof = 1), and geometric coefficient "
+        "of variation sqrt(exp(s\u00b2)\u22121) (Kirkwood 1979). A log-normal quantity is written "
+        "GM \u00d7/\u00f7 GSD, which covers about 68\u00a0% of the population (Limpert, Stahel &amp; "
+        "Abbt 2001).",
+        f"The {pct} confidence interval of the geometric mean is exp(\u0233 \u00b1 "
+        "t<sub>1\u2212\u03b1/2, n\u22121</sub>\u00b7s/\u221an).",
+        "Fold changes are ratios of geometric means, exp(\u0233<sub>1</sub> \u2212 \u0233<sub>0</sub>), "
+        "with interval and p-value from Welch\u2019s t test on the logs (Welch 1947)"
+        + (", computed on the replicate means of the logs so that the replicate, not the cell, is the "
+           "experimental unit (Lord et al. 2020)" if with_replicate else "")
+        + "; p-values are adjusted for multiplicity "
+        + {"holm": "by Holm\u2019s step-down method (Holm 1979)",
+           "bh": "by the Benjamini\u2013Hochberg procedure (Benjamini &amp; Hochberg 1995)",
+           None: "not at all"}.get(adjust, "as requested")
+        + ". Equivalence, when asked for, uses two one-sided tests (Schuirmann 1987).",
+        "The scale check compares the normal and the log-normal fitted by maximum likelihood to the "
+        "same values through AIC = 2k \u2212 2\u00a0log\u00a0L (Akaike 1974), the log-normal likelihood "
+        "taken on the original scale (with the Jacobian \u2212\u03a3\u00a0ln\u00a0x); it reports "
+        "normality tests of x and of ln x (Shapiro\u2013Wilk up to 5000 values, Shapiro &amp; Wilk "
+        "1965; D\u2019Agostino\u2013Pearson K\u00b2 above, D\u2019Agostino &amp; Pearson 1973) and the "
+        "ratio of the arithmetic to the geometric mean beside exp(s\u00b2/2), the ratio a log-normal "
+        "implies (NIST/SEMATECH e-Handbook).",
+    ]
+    if with_censoring:
+        items.append(
+            "Values at or below the detection limit are left-censored: the log-normal is fitted by "
+            "maximum likelihood with the density for detected values and the distribution function at "
+            "the limit for non-detects (Cohen 1961), rather than by substituting a value for them.")
+    return ('<section id="methods"><h2>Methods</h2><p>' + " ".join(items) + "</p></section>")
+
+
+def _cautions() -> str:
+    return (
+        '<section id="cautions"><h2>Cautions</h2>'
+        "<p>This report is an automated statistical summary for research and exploration. It is not a "
+        "validated tool and makes no claim of fitness for any particular decision.</p>"
+        "<ul>"
+        "<li>For clinical, regulatory or safety use, repeat the analysis with validated tools under a "
+        "documented procedure and have it reviewed by a qualified statistician or analyst.</li>"
+        "<li>Follow the local rules, guidelines and licensed practice that govern your field; they take "
+        "precedence over anything stated here.</li>"
+        "<li>Check the assumptions: the scale check and the probability plots show whether the logs "
+        "are close to normal, and the comparisons assume independent experimental units.</li>"
+        "</ul></section>"
+    )
