@@ -92,6 +92,20 @@ class LogMoments:
             parts[name] = v.astype(np.int64) if name in _COUNTS else v
         return cls(**parts)
 
+    @classmethod
+    def from_values(cls, values: Any, axis: int | Sequence[int] | None = None) -> LogMoments:
+        """Moments of ``values`` over ``axis`` (None = all); see :func:`moments_along`."""
+        return moments_along(values, axis=axis)
+
+    @classmethod
+    def from_groups(cls, values: Any, codes: Any, ngroups: int) -> LogMoments:
+        """Moments per group along the last axis; see :func:`moments_by_codes`."""
+        return moments_by_codes(values, codes, ngroups)
+
+    def combine(self, *others: LogMoments) -> LogMoments:
+        """Merge with other moment sets of the same shape (Chan et al. 1979)."""
+        return combine_moments([self, *others])
+
     def take(self, index: Any) -> LogMoments:
         return LogMoments(**{k: np.asarray(v)[index] for k, v in self.to_dict().items()})
 
@@ -122,36 +136,90 @@ def _empty_to_nan(n: np.ndarray, *arrs: np.ndarray) -> list[np.ndarray]:
     return [np.where(n > 0, a, np.nan) for a in arrs]
 
 
+#: Values handled at once by :func:`moments_along` on large inputs (2 MiB of float64: the temporaries
+#: of one block stay in the processor cache).
+ALONG_CHUNK = 1 << 18
+
+
 def moments_along(values: Any, axis: int | Sequence[int] | None = None, *, where: str = "the input",
-                  logged: LoggedValues | None = None) -> LogMoments:
+                  logged: LoggedValues | None = None, chunk_values: int = ALONG_CHUNK) -> LogMoments:
     """Log-moments of ``values`` reduced over ``axis`` (an int, a tuple, or None for all).
 
     Uses numpy's pairwise summation and the corrected two-pass formula, so cancellation (values such
-    as 1e7 ± 1e-1) costs no accuracy.
+    as 1e7 ± 1e-1) costs no accuracy. When the reduced axes are the trailing ones (as the accessors
+    arrange) and the input holds more than ``chunk_values`` values, it is taken in blocks: whole rows
+    of the kept axes, or slices of the last axis whose moments are merged with :func:`merge_two`. The
+    temporaries then stay small and in cache (about 3x faster on 2e7 values), and the result agrees
+    with the one-block computation to rounding (closer to the exact value when the last axis is strided).
     """
-    lv = logged if logged is not None else to_logs(values, where=where)
+    if logged is not None:
+        ndim = np.ndim(logged.y)
+        return _moments_along(logged, tuple(range(ndim)) if axis is None else normalize_axes(axis, ndim))
+    arr = np.asarray(values)
+    nd = arr.ndim
+    axes = tuple(range(nd)) if axis is None else normalize_axes(axis, nd)
+    k = len(axes)
+    if arr.size <= chunk_values or not axes or axes != tuple(range(nd - k, nd)):
+        return _moments_along(to_logs(arr, where=where), axes, own_logs=True)
+    if k == nd:
+        return _moments_along_last(arr, axes, where, chunk_values)
+    rows = arr.shape[0]  # a kept axis: blocks of whole rows, each reduced completely
+    step = max(chunk_values // (arr.size // rows), 1)
+    parts = [_moments_along_last(arr[s : s + step], axes, where, chunk_values) for s in range(0, rows, step)]
+    if len(parts) == 1:
+        return parts[0]
+    return LogMoments(**{f: np.concatenate([getattr(p, f) for p in parts], axis=0) for f in FIELDS})
+
+
+def _moments_along_last(arr: np.ndarray, axes: tuple[int, ...], where: str, chunk_values: int) -> LogMoments:
+    """Slices of the last (reduced) axis, each about ``chunk_values`` values, merged in order."""
+    last = arr.shape[-1]
+    step = chunk_values // max(arr.size // max(last, 1), 1)
+    if step < 64 or step >= last:  # thin slices would cost more than they save
+        return _moments_along(to_logs(arr, where=where), axes, own_logs=True)
+    out = None
+    for start in range(0, last, step):
+        part = _moments_along(to_logs(arr[..., start : start + step], where=where), axes, own_logs=True)
+        out = part if out is None else merge_two(out, part)
+    assert out is not None
+    return out
+
+
+def _moments_along(lv: LoggedValues, axes: tuple[int, ...], *, own_logs: bool = False) -> LogMoments:
+    """Corrected two-pass moments over ``axes``; ``own_logs``: ``lv.y`` may be overwritten (it was made
+    here), which saves one array per block: fewer fresh pages, a measurable cost in dask worker threads."""
     y = lv.y
-    if axis is None:
-        axes = tuple(range(y.ndim))
-    else:
-        axes = normalize_axes(axis, y.ndim)
-    valid = lv.valid
-    n = valid.sum(axis=axes)
-    yz = np.where(valid, y, 0.0)
+    any_missing = bool(np.any(lv.missing))
+    any_nonpositive = bool(np.any(lv.nonpositive))
     with np.errstate(divide="ignore", invalid="ignore"):
-        mean = yz.sum(axis=axes) / n
-        d = np.where(valid, y - np.expand_dims(mean, axes), 0.0)
+        if any_missing or any_nonpositive:
+            valid = lv.valid
+            n = valid.sum(axis=axes)
+            mean = np.where(valid, y, 0.0).sum(axis=axes) / n
+            d = np.where(valid, y - np.expand_dims(mean, axes), 0.0)
+        else:  # every value counts: no masks, no copies beyond the deviations
+            count = int(np.prod([y.shape[a] for a in axes], dtype=np.int64))
+            n = np.full(tuple(s for i, s in enumerate(y.shape) if i not in axes), count, dtype=np.int64)
+            mean = y.sum(axis=axes) / n
+            d = np.subtract(y, np.expand_dims(mean, axes), out=y if own_logs else None)
         corr = d.sum(axis=axes)
-        m2 = (d * d).sum(axis=axes) - corr * corr / n
+        np.multiply(d, d, out=d)
+        m2 = d.sum(axis=axes) - corr * corr / n
         mean = mean + corr / n
     m2 = np.maximum(m2, 0.0)
     mean, m2 = _empty_to_nan(n, mean, m2)
+
+    def count_of(mask: np.ndarray, anywhere: bool) -> np.ndarray:
+        if not anywhere:
+            return np.zeros(np.shape(n), dtype=np.int64)
+        return np.asarray(mask.sum(axis=axes), dtype=np.int64)
+
     return LogMoments(
         n=np.asarray(n, dtype=np.int64),
         mean_log=np.asarray(mean, dtype=np.float64),
         m2_log=np.asarray(m2, dtype=np.float64),
-        n_missing=np.asarray(lv.missing.sum(axis=axes), dtype=np.int64),
-        n_nonpositive=np.asarray(lv.nonpositive.sum(axis=axes), dtype=np.int64),
+        n_missing=count_of(lv.missing, any_missing),
+        n_nonpositive=count_of(lv.nonpositive, any_nonpositive),
     )
 
 
@@ -169,30 +237,52 @@ def normalize_axes(axis: int | Sequence[int], ndim: int) -> tuple[int, ...]:
     return tuple(sorted(out))
 
 
-#: Rows handled at once by :func:`moments_by_codes`; bounds the temporaries to a few times this many floats.
+#: Most values handled at once by :func:`moments_by_codes`; bounds its temporaries to a few times this
+#: many floats (8 MiB each). The chunk actually used is :func:`chunk_size`.
 CHUNK_ROWS = 1 << 20
+#: Fewest values per chunk: below this the fixed cost per chunk (a few numpy calls) starts to show.
+CHUNK_ROWS_MIN = 1 << 17
+
+
+def chunk_size(rows: int, ngroups: int, *, most: int = CHUNK_ROWS) -> int:
+    """Positions along the grouped axis taken at once by :func:`moments_by_codes`.
+
+    Each chunk costs work in proportion to ``rows * ngroups`` (the per-group sums and their merge), so
+    a chunk holds about 16 values per group, and never fewer than ``CHUNK_ROWS_MIN`` nor more than
+    ``most`` values. Small chunks stay in the processor cache; on a 2-core machine this was about 1.5x
+    faster than one fixed size of 2**20 for 100 or 1,000 groups (see ``benchmarks/``).
+    """
+    rows = max(int(rows), 1)
+    values = min(max(16 * rows * max(int(ngroups), 1), CHUNK_ROWS_MIN), max(int(most), 1))
+    return max(values // rows, 1)
 
 
 def moments_by_codes(values: Any, codes: Any, ngroups: int, *, where: str = "the input",
-                     chunk_rows: int = CHUNK_ROWS) -> LogMoments:
+                     chunk_rows: int | None = None) -> LogMoments:
     """Log-moments per group along the **last** axis of ``values``.
 
     ``codes`` (length = last axis) gives each position's group in ``0 .. ngroups-1``; negative codes
     (missing keys) belong to no group. The result has shape ``values.shape[:-1] + (ngroups,)``. One
-    ``np.bincount`` pass per statistic over all groups at once: no Python loop over groups. Long inputs
-    are taken ``chunk_rows`` positions at a time and the pieces merged with :func:`merge_two`, which keeps
-    the extra memory bounded whatever the length.
+    scatter-add pass per statistic over all groups at once: no Python loop over groups. Long inputs
+    are taken ``chunk_rows`` positions at a time (default :func:`chunk_size`) and the pieces merged with
+    :func:`merge_two`, which keeps the extra memory bounded whatever the length.
     """
     arr = np.asarray(values)
-    codes = np.asarray(codes)
+    codes = np.asarray(codes, dtype=np.intp)
     N = arr.shape[-1] if arr.ndim else 1
+    if codes.shape != (N,):
+        raise ValueError(f"codes have shape {codes.shape}, expected ({N},) to match the last axis")
+    rows = int(np.prod(arr.shape[:-1])) if arr.ndim > 1 else 1
+    if chunk_rows is None:
+        chunk_rows = chunk_size(rows, ngroups)
+    keyed_all = N == 0 or bool(codes.min() >= 0)
     if N <= chunk_rows:
-        return _moments_by_codes(arr, codes, ngroups, where=where)
+        return _grouped(to_logs(arr, where=where), codes, ngroups, keyed_all=keyed_all)
+    work = np.empty(rows * chunk_rows)  # the deviations of every chunk, in one reused buffer
     out = None
     for start in range(0, N, chunk_rows):
-        part = _moments_by_codes(
-            arr[..., start : start + chunk_rows], codes[start : start + chunk_rows], ngroups, where=where
-        )
+        part = _grouped(to_logs(arr[..., start : start + chunk_rows], where=where),
+                        codes[start : start + chunk_rows], ngroups, keyed_all=keyed_all, work=work)
         out = part if out is None else merge_two(out, part)
     assert out is not None
     return out
@@ -208,11 +298,31 @@ def log_moments_by_codes(logs: Any, codes: Any, ngroups: int) -> LogMoments:
     return _grouped(lv, np.asarray(codes), ngroups)
 
 
-def _moments_by_codes(values: Any, codes: Any, ngroups: int, *, where: str) -> LogMoments:
-    return _grouped(to_logs(values, where=where), codes, ngroups)
+#: ``np.add.at`` has had a fast unbuffered loop since numpy 1.25 and with numpy 2 beats ``np.bincount``
+#: (about 1.3x per pass, measured with numpy 2.4); both add in element order, so the sums are the same
+#: bit for bit.
+_FAST_ADD_AT = np.lib.NumpyVersion(np.__version__) >= "2.0.0"
 
 
-def _grouped(lv: LoggedValues, codes: Any, ngroups: int) -> LogMoments:
+def _scatter_sum(idx: np.ndarray, size: int, weights: np.ndarray | None = None) -> np.ndarray:
+    """Per-index sums of ``weights`` (counts without), in element order; ``idx`` in ``0 .. size-1``."""
+    if not _FAST_ADD_AT:
+        return np.bincount(idx, weights=weights, minlength=size)
+    if weights is None:
+        out = np.zeros(size, dtype=np.intp)
+        np.add.at(out, idx, 1)
+    else:
+        out = np.zeros(size, dtype=np.float64)
+        np.add.at(out, idx, weights)
+    return out
+
+
+def _grouped(lv: LoggedValues, codes: Any, ngroups: int, *, keyed_all: bool | None = None,
+             work: np.ndarray | None = None) -> LogMoments:
+    """Corrected two-pass moments per group (``keyed_all``: no negative code; computed when None).
+
+    ``work``, a float buffer of at least as many values, receives the deviations (reused across chunks).
+    """
     y = lv.y
     codes = np.asarray(codes, dtype=np.intp)
     if y.ndim == 0:
@@ -220,45 +330,59 @@ def _grouped(lv: LoggedValues, codes: Any, ngroups: int) -> LogMoments:
     N = y.shape[-1]
     if codes.shape != (N,):
         raise ValueError(f"codes have shape {codes.shape}, expected ({N},) to match the last axis")
+    if keyed_all is None:
+        keyed_all = N == 0 or bool(codes.min() >= 0)
     lead = y.shape[:-1]
     rows = int(np.prod(lead)) if lead else 1
     size = rows * ngroups
-    y2 = y.reshape(rows, N)
     if rows == 1:
-        idx = np.broadcast_to(codes, (1, N))
+        idx = codes
     else:
         idx = codes[None, :] + (ngroups * np.arange(rows, dtype=np.intp))[:, None]
-        idx = np.where(codes[None, :] >= 0, idx, -1)
-    keyed = codes >= 0
-    valid = lv.valid.reshape(rows, N) & keyed[None, :]
+        if not keyed_all:
+            idx = np.where(codes[None, :] >= 0, idx, -1)
+        idx = idx.reshape(-1)
+    yf = y.reshape(-1)
+    missing = np.asarray(lv.missing).reshape(-1)
+    nonpositive = np.asarray(lv.nonpositive).reshape(-1)
+    any_missing = bool(missing.any())
+    any_nonpositive = bool(nonpositive.any())
 
-    if valid.all():
-        ik, yk = idx.ravel(), y2.ravel()
+    if keyed_all and not (any_missing or any_nonpositive):
+        ik, yk = idx, yf  # the common case: no copies
     else:
-        ik, yk = idx[valid], y2[valid]
-    n = np.bincount(ik, minlength=size)
+        valid = ~(missing | nonpositive)
+        if not keyed_all:
+            valid &= idx >= 0
+        ik, yk = idx[valid], yf[valid]
+    n = _scatter_sum(ik, size)
     with np.errstate(divide="ignore", invalid="ignore"):
-        mean = np.bincount(ik, weights=yk, minlength=size) / n
-        d = yk - mean[ik]
-        corr = np.bincount(ik, weights=d, minlength=size)
-        m2 = np.bincount(ik, weights=d * d, minlength=size) - corr * corr / n
+        mean = _scatter_sum(ik, size, yk) / n
+        if work is not None and work.size >= ik.size:
+            d = np.take(mean, ik, out=work[: ik.size], mode="clip")  # ik is in range: no check needed
+        else:
+            d = np.take(mean, ik)
+        np.subtract(yk, d, out=d)  # deviations from the first-pass group mean, in one buffer
+        corr = _scatter_sum(ik, size, d)
+        np.multiply(d, d, out=d)
+        m2 = _scatter_sum(ik, size, d) - corr * corr / n
         mean = mean + corr / n
     m2 = np.maximum(m2, 0.0)
     mean, m2 = _empty_to_nan(n, mean, m2)
 
-    def count(mask: np.ndarray) -> np.ndarray:
-        m = mask.reshape(rows, N) & keyed[None, :]
-        if not m.any():
+    def count(mask: np.ndarray, anywhere: bool) -> np.ndarray:
+        if not anywhere:
             return np.zeros(size, dtype=np.int64)
-        return np.bincount(idx[m], minlength=size)
+        m = mask if keyed_all else mask & (idx >= 0)
+        return _scatter_sum(idx[m], size)
 
     shape = lead + (ngroups,)
     return LogMoments(
         n=n.astype(np.int64).reshape(shape),
         mean_log=mean.reshape(shape),
         m2_log=m2.reshape(shape),
-        n_missing=count(lv.missing).astype(np.int64).reshape(shape),
-        n_nonpositive=count(lv.nonpositive).astype(np.int64).reshape(shape),
+        n_missing=count(missing, any_missing).astype(np.int64).reshape(shape),
+        n_nonpositive=count(nonpositive, any_nonpositive).astype(np.int64).reshape(shape),
     )
 
 

@@ -119,24 +119,25 @@ class LoggedValues:
         return ~(self.missing | self.nonpositive)
 
 
-def to_logs(values: Any, *, where: str = "the input", keep_nonpositive: bool = False) -> LoggedValues:
+def to_logs(values: Any, *, where: str = "the input") -> LoggedValues:
     """Natural logs of ``values`` with the missing and non-positive entries marked.
 
     ``+inf`` raises a ValueError naming ``where``. ``-inf``, zero and negatives are non-positive. The
-    returned ``y`` holds NaN at every excluded entry; numpy's RuntimeWarnings never escape. With
-    ``keep_nonpositive`` the non-positive mask is still computed but callers (censored fits) use it.
+    returned ``y`` (always a new array; the input is never written) holds NaN at every excluded entry;
+    numpy's RuntimeWarnings never escape. One log pass and no full-size temporaries beyond the masks.
     """
     x = as_float_array(values, where=where)
-    missing = np.isnan(x)
-    posinf = np.isposinf(x)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        y = np.log(x)
+    posinf = y == np.inf  # only log(+inf) is +inf
     if posinf.any():
         raise ValueError(
             f"{where} holds {int(posinf.sum())} value(s) of +inf; logstats refuses +inf always "
             "(replace it with NaN to have it skipped and counted as missing)"
         )
+    missing = np.isnan(x)
     nonpositive = x <= 0  # NaN compares False; -inf is <= 0
-    with np.errstate(divide="ignore", invalid="ignore"):
-        y = np.log(np.where(nonpositive, np.nan, x))
+    y[nonpositive] = np.nan  # log gave -inf for 0 and NaN for negatives: make both NaN
     return LoggedValues(y=y, missing=missing, nonpositive=nonpositive)
 
 

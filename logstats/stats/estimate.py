@@ -45,8 +45,13 @@ def t_quantile(confidence_level: float, df: np.ndarray) -> np.ndarray:
     """Two-sided Student t quantile ``t(1 − α/2, df)``; NaN where ``df <= 0``."""
     cl = _check_level(confidence_level)
     df = np.asarray(df, dtype=np.float64)
-    with np.errstate(invalid="ignore"):
-        return np.where(df > 0, stats.t.ppf(0.5 + cl / 2.0, np.where(df > 0, df, 1.0)), np.nan)
+    out = np.full(df.shape, np.nan)
+    ok = df > 0
+    if ok.any():
+        # groups share few distinct sizes: one scipy call per distinct df, not per group
+        uniq, inv = np.unique(df[ok], return_inverse=True)
+        out[ok] = stats.t.ppf(0.5 + cl / 2.0, uniq)[inv]
+    return out
 
 
 def gmean(m: LogMoments) -> np.ndarray:
