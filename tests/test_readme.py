@@ -18,6 +18,11 @@ def test_readme_examples_run_and_match_their_printed_numbers():
     pytest.importorskip("matplotlib")
     ns: dict = {}
     for block in blocks():
+        if "LocalCluster" in block:
+            continue  # starts worker processes; the same code path is tested in test_out_of_core.py
+        # the larger-than-memory example, shrunk from 4 GB to 32 MB so that it runs in the test
+        block = block.replace("125_000_000", "1_000_000")
+        block = block.replace("chunks=(4, 1_000_000)", "chunks=(4, 250_000)")
         exec(compile(block, str(README), "exec"), ns)
     cells = ns["cells"]
     per_well = cells.logstats.fold_change(by="treatment", reference="vehicle", columns="reporter",
