@@ -189,8 +189,8 @@ def _moments_along(lv: LoggedValues, axes: tuple[int, ...], *, own_logs: bool = 
     """Corrected two-pass moments over ``axes``; ``own_logs``: ``lv.y`` may be overwritten (it was made
     here), which saves one array per block: fewer fresh pages, a measurable cost in dask worker threads."""
     y = lv.y
-    any_missing = bool(np.any(lv.missing))
-    any_nonpositive = bool(np.any(lv.nonpositive))
+    any_missing = not lv.clean and bool(np.any(lv.missing))
+    any_nonpositive = not lv.clean and bool(np.any(lv.nonpositive))
     with np.errstate(divide="ignore", invalid="ignore"):
         if any_missing or any_nonpositive:
             valid = lv.valid
@@ -345,8 +345,8 @@ def _grouped(lv: LoggedValues, codes: Any, ngroups: int, *, keyed_all: bool | No
     yf = y.reshape(-1)
     missing = np.asarray(lv.missing).reshape(-1)
     nonpositive = np.asarray(lv.nonpositive).reshape(-1)
-    any_missing = bool(missing.any())
-    any_nonpositive = bool(nonpositive.any())
+    any_missing = not lv.clean and bool(missing.any())
+    any_nonpositive = not lv.clean and bool(nonpositive.any())
 
     if keyed_all and not (any_missing or any_nonpositive):
         ik, yk = idx, yf  # the common case: no copies

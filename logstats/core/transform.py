@@ -113,6 +113,8 @@ class LoggedValues:
     y: np.ndarray
     missing: np.ndarray
     nonpositive: np.ndarray
+    #: True when every value is valid (then both masks are all False and need not be scanned).
+    clean: bool = False
 
     @property
     def valid(self) -> np.ndarray:
@@ -129,6 +131,9 @@ def to_logs(values: Any, *, where: str = "the input") -> LoggedValues:
     x = as_float_array(values, where=where)
     with np.errstate(divide="ignore", invalid="ignore"):
         y = np.log(x)
+    if np.isfinite(y).all():  # the common case, one scan: nothing missing, non-positive or infinite
+        return LoggedValues(y=y, missing=np.zeros(y.shape, dtype=bool),
+                            nonpositive=np.zeros(y.shape, dtype=bool), clean=True)
     posinf = y == np.inf  # only log(+inf) is +inf
     if posinf.any():
         raise ValueError(
