@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from logstats.accessors._engine import INT_FIELDS, finalize, grouped_method, stacked_moments
+from logstats.accessors._face import FigureMethods
 from logstats.accessors._labels import Groups, column_values, factorize_keys, resolve_keys, value_columns
 from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
 
@@ -36,7 +37,7 @@ def tidy_frame(fields: dict[str, np.ndarray], index: pd.Index) -> pd.DataFrame:
     return pd.DataFrame(out, index=index)
 
 
-class _PandasBase:
+class _PandasBase(FigureMethods):
     _obj: Any
 
     # ------------------------------------------------------------------ plumbing
@@ -428,26 +429,6 @@ class _PandasBase:
         for col in value_columns(df, columns):
             out[col] = exp_values(column_values(df[col], col), base=base, where=_where(col))
         return out
-
-    # ------------------------------------------------------------------ figures and report
-    # The drawing lives in the face layer (logstats.plot, logstats.report); these only forward to it.
-    def plot_hist(self, *args: Any, **kwargs: Any) -> Any:
-        """Log-binned histogram with the fitted log-normal density; see :func:`logstats.plot.hist`."""
-        from logstats import plot
-
-        return plot.hist(self._obj, *args, **kwargs)
-
-    def plot_groups(self, *args: Any, **kwargs: Any) -> Any:
-        """Per-cell points, replicate means and gmean ×/÷ CI per group; see :func:`logstats.plot.groups`."""
-        from logstats import plot
-
-        return plot.groups(self._obj, *args, **kwargs)
-
-    def plot_qq(self, *args: Any, **kwargs: Any) -> Any:
-        """Normal probability plot of the logs; see :func:`logstats.plot.qq`."""
-        from logstats import plot
-
-        return plot.qq(self._obj, *args, **kwargs)
 
     def report(self, *args: Any, **kwargs: Any) -> str:
         """A self-contained HTML report of the whole analysis; see :func:`logstats.report.build_report`."""

@@ -16,6 +16,7 @@ import pandas as pd
 import xarray as xr
 
 from logstats.accessors._engine import INT_FIELDS, finalize, grouped_method, is_dask, stacked_moments
+from logstats.accessors._face import FigureMethods
 from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
 
 __all__ = ["LogstatsArrayAccessor", "LogstatsDatasetAccessor"]
@@ -160,7 +161,7 @@ def _raw_array(kind: str, da: xr.DataArray, name: Hashable, dim: Any, by: Hashab
     return xr.Dataset(out)
 
 
-class _XarrayBase:
+class _XarrayBase(FigureMethods):
     _obj: Any
 
     def _variables(self) -> list[tuple[Hashable, xr.DataArray]]:
@@ -380,26 +381,6 @@ class _XarrayBase:
         for name, da in self._variables():
             ds[name] = fn(da, name)
         return ds
-
-    # ------------------------------------------------------------------ figures and report
-    # The drawing lives in the face layer (logstats.plot, logstats.report); these only forward to it.
-    def plot_hist(self, *args: Any, **kwargs: Any) -> Any:
-        """Log-binned histogram with the fitted log-normal density; see :func:`logstats.plot.hist`."""
-        from logstats import plot
-
-        return plot.hist(self._obj, *args, **kwargs)
-
-    def plot_groups(self, *args: Any, **kwargs: Any) -> Any:
-        """Per-cell points, replicate means and gmean ×/÷ CI per group; see :func:`logstats.plot.groups`."""
-        from logstats import plot
-
-        return plot.groups(self._obj, *args, **kwargs)
-
-    def plot_qq(self, *args: Any, **kwargs: Any) -> Any:
-        """Normal probability plot of the logs; see :func:`logstats.plot.qq`."""
-        from logstats import plot
-
-        return plot.qq(self._obj, *args, **kwargs)
 
 
 @xr.register_dataarray_accessor("logstats")

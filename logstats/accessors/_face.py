@@ -1,0 +1,33 @@
+"""Figure methods shared by every accessor: they only forward to the face layer (``logstats.plot``).
+
+The drawing itself lives in the face layer; the import happens inside each method, so the adapters
+never import matplotlib and ``import logstats`` stays free of it.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+__all__ = ["FigureMethods"]
+
+
+class FigureMethods:
+    _obj: Any
+
+    def plot_hist(self, *args: Any, **kwargs: Any) -> Any:
+        """Log-binned histogram with the fitted log-normal density; see :func:`logstats.plot.hist`."""
+        from logstats import plot
+
+        return plot.hist(self._obj, *args, **kwargs)
+
+    def plot_groups(self, *args: Any, **kwargs: Any) -> Any:
+        """Every value, replicate means and gmean ×/÷ CI per group; see :func:`logstats.plot.groups`."""
+        from logstats import plot
+
+        return plot.groups(self._obj, *args, **kwargs)
+
+    def plot_qq(self, *args: Any, **kwargs: Any) -> Any:
+        """Normal probability plot of the logs; see :func:`logstats.plot.qq`."""
+        from logstats import plot
+
+        return plot.qq(self._obj, *args, **kwargs)
