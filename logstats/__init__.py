@@ -7,7 +7,19 @@ DataArray/Dataset (and dask DataFrame when dask is installed). Array-level funct
 
 from logstats.accessors import pandas as _pandas_accessor  # noqa: F401  (registers the accessors)
 from logstats.accessors import xarray as _xarray_accessor  # noqa: F401
-from logstats.accessors.arrays import combine_moments, exp, gcv, gmean, gsd, log, moments, summary
+from logstats.accessors.arrays import (
+    combine_moments,
+    exp,
+    fit,
+    gcv,
+    gmean,
+    gsd,
+    log,
+    lognormal_mean,
+    moments,
+    scale_check,
+    summary,
+)
 from logstats.accessors.dask import register_dask_dataframe as _register_dask_dataframe
 from logstats.core.moments import LogMoments
 from logstats.core.transform import LogstatsWarning
@@ -24,10 +36,13 @@ __all__ = [
     "adjust_p",
     "combine_moments",
     "exp",
+    "fit",
     "gcv",
     "gmean",
     "gsd",
     "log",
+    "lognormal_mean",
     "moments",
+    "scale_check",
     "summary",
 ]

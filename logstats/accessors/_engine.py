@@ -68,6 +68,52 @@ def _fields_gcv(m: LogMoments, *, ddof: float = 1, **_: Any) -> dict[str, np.nda
     return {"gcv": estimate.gcv(m, ddof)}
 
 
+#: ``status`` of a closed-form fit, by the code the finalizer stores (strings cannot travel in the
+#: float stack); the names are those of :data:`logstats.stats.fit.FIT_STATUSES`.
+CLOSED_FIT_STATUS = ("closed_form", "degenerate", "empty", "missing", "nonpositive")
+
+
+def _fields_fit(m: LogMoments, *, skipna: bool = True, nonpositive: str = "drop",
+                **_: Any) -> dict[str, np.ndarray]:
+    from logstats.stats.fit import closed_form_fit
+
+    cf = closed_form_fit(m)
+    n = np.asarray(m.n)
+    mu, sigma = cf["mu"], cf["sigma"]
+    # all values equal: sigma is zero up to the rounding of the mean (the MLE does not exist)
+    degenerate = (n > 0) & (sigma <= 16 * np.finfo(np.float64).eps * np.maximum(1.0, np.abs(mu)))
+    status = np.where(n == 0, 2, np.where(degenerate, 1, 0))
+    poisoned = np.isnan(mu) & (n > 0)
+    if not skipna:
+        status = np.where(poisoned & (np.asarray(m.n_missing) > 0), 3, status)
+    status = np.where(poisoned & (status != 3), 4, status)
+    ok = status == 0
+    return {
+        "mu": mu,
+        "sigma": np.where(degenerate, 0.0, sigma),
+        "n": n,
+        "n_censored": np.asarray(m.n_censored),
+        "loglik": np.where(degenerate, np.inf, cf["loglik"]),
+        "converged": ok.astype(np.float64),
+        "se_mu": np.where(ok, cf["se_mu"], np.nan),
+        "se_sigma": np.where(ok, cf["se_sigma"], np.nan),
+        "n_iter": np.zeros(n.shape),
+        "n_missing": np.asarray(m.n_missing),
+        "n_nonpositive": np.asarray(m.n_nonpositive),
+        "status": status.astype(np.float64),
+    }
+
+
+def _fields_lognormal_mean(m: LogMoments, **kw: Any) -> dict[str, np.ndarray]:
+    from logstats.stats.fit import lognormal_mean
+
+    keep = {k: kw[k] for k in ("method", "confidence_level", "random_state", "n_draws") if k in kw}
+    res = lognormal_mean(m, **keep)
+    return {"estimate": res["estimate"], "ci_low": res["ci_low"], "ci_high": res["ci_high"],
+            "n": np.asarray(m.n), "n_missing": np.asarray(m.n_missing),
+            "n_nonpositive": np.asarray(m.n_nonpositive)}
+
+
 FINALIZERS: dict[str, tuple[Callable[..., dict[str, np.ndarray]], tuple[str, ...]]] = {
     "moments": (_fields_moments, FIELDS),
     "summary": (
@@ -77,9 +123,16 @@ FINALIZERS: dict[str, tuple[Callable[..., dict[str, np.ndarray]], tuple[str, ...
     "gmean": (_fields_gmean, ("gmean",)),
     "gsd": (_fields_gsd, ("gsd",)),
     "gcv": (_fields_gcv, ("gcv",)),
+    "fit": (_fields_fit, ("mu", "sigma", "n", "n_censored", "loglik", "converged", "se_mu", "se_sigma",
+                          "n_iter", "n_missing", "n_nonpositive", "status")),
+    "lognormal_mean": (_fields_lognormal_mean, ("estimate", "ci_low", "ci_high", "n", "n_missing",
+                                                "n_nonpositive")),
 }
+#: Finalizers that must see all groups at once (Monte Carlo draws are laid out over every group, so a
+#: dask result equals the in-memory one only if the small merged moments are finalized in one block).
+WHOLE_BLOCK = frozenset({"lognormal_mean"})
 
-INT_FIELDS = frozenset({"n", "n_missing", "n_nonpositive", "n_censored"})
+INT_FIELDS = frozenset({"n", "n_missing", "n_nonpositive", "n_censored", "n_iter"})
 
 
 def register_finalizer(kind: str, fn: Callable[..., dict[str, np.ndarray]], names: Sequence[str]) -> None:
@@ -126,6 +179,8 @@ def finalize(stacked: Any, *, kind: str, skipna: bool = True, nonpositive: str =
     kw: dict[str, Any] = dict(kind=kind, skipna=skipna, nonpositive=nonpositive, where=where,
                               labels=labels, params=params or {})
     if is_dask(stacked):
+        if kind in WHOLE_BLOCK:
+            stacked = stacked.rechunk(-1)  # the merged moments: small, one value set per group
         chunks = stacked.chunks[:-1] + ((len(names),),)
         return stacked.map_blocks(finalize_numpy, chunks=chunks, dtype=np.float64, **kw), names
     return finalize_numpy(stacked, **kw), names
@@ -176,3 +231,35 @@ def grouped_method(kind: str, values: np.ndarray, codes: np.ndarray, ngroups: in
         raise ValueError(f"unknown method {kind!r}")
     raise_for_counts(res["n_nonpositive"], nonpositive=nonpositive, where=where, labels=labels)
     return res
+
+
+def raw_reduce(kind: str, data: np.ndarray, *, codes: np.ndarray | None = None, ngroups: int | None = None,
+               where: str = "the input", labels: Sequence[Any] | None = None, nonpositive: str = "raise",
+               skipna: bool = True, detection_limit: Any = None, **kw: Any) -> dict[str, np.ndarray]:
+    """A raw-value method over the **last** axis of ``data``, every leading position in one pass.
+
+    Position ``r`` of the leading axes and group ``g`` become flat group ``r * G + g``, so the
+    statistics layer sees one 1-D problem however many channels or time points there are. Results
+    have shape ``data.shape[:-1]`` (plus ``(G,)`` with ``codes``). ``detection_limit``: a number or
+    an array of ``data``'s shape.
+    """
+    data = np.asarray(data)
+    if data.ndim == 0:
+        data = data.reshape(1)
+    lead = data.shape[:-1]
+    rows = int(np.prod(lead)) if lead else 1
+    width = data.shape[-1]
+    if codes is None:
+        g, base = 1, np.zeros(width, dtype=np.intp)
+    else:
+        g, base = int(ngroups or 0), np.asarray(codes, dtype=np.intp)
+    full = np.where(base[None, :] >= 0, base[None, :] + g * np.arange(rows)[:, None], -1).ravel()
+    if detection_limit is not None and np.ndim(detection_limit) > 0:
+        detection_limit = np.broadcast_to(np.asarray(detection_limit, dtype=np.float64), data.shape).ravel()
+    if detection_limit is not None:
+        kw["detection_limit"] = detection_limit
+    res = grouped_method(kind, data.reshape(-1), full, rows * g, where=where,
+                         labels=(list(labels) * rows) if labels is not None else None,
+                         nonpositive=nonpositive, skipna=skipna, **kw)
+    shape = lead + ((g,) if codes is not None else ())
+    return {k: np.asarray(v).reshape(shape) for k, v in res.items()}

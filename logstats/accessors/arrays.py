@@ -10,12 +10,13 @@ from typing import Any
 
 import numpy as np
 
-from logstats.accessors._engine import finalize, is_dask, stacked_moments
+from logstats.accessors._engine import finalize, is_dask, raw_reduce, stacked_moments
 from logstats.core import moments as _core_moments
 from logstats.core.moments import FIELDS, LogMoments, normalize_axes
 from logstats.core.transform import exp_values, log_values
 
-__all__ = ["combine_moments", "exp", "gcv", "gmean", "gsd", "log", "moments", "summary"]
+__all__ = ["combine_moments", "exp", "fit", "gcv", "gmean", "gsd", "lognormal_mean", "log", "moments",
+           "scale_check", "summary"]
 
 
 def _prepare(x: Any, axis: Any) -> tuple[Any, int]:
@@ -83,6 +84,47 @@ def summary(x: Any, *, axis: Any = None, confidence_level: float = 0.95, ddof: f
     out, names = _run("summary", x, axis, skipna=skipna, nonpositive=nonpositive,
                       params={"confidence_level": confidence_level, "ddof": ddof})
     return {k: _scalar(out[..., i]) for i, k in enumerate(names)}
+
+
+def _raw(kind: str, x: Any, axis: Any, **kw: Any) -> dict[str, Any]:
+    data, nred = _prepare(np.asarray(x), axis)  # raw-value methods need every value: dask input is loaded
+    limit = kw.pop("detection_limit", None)
+    if limit is not None and np.ndim(limit) > 0:
+        limit, _ = _prepare(np.broadcast_to(np.asarray(limit, dtype=np.float64), np.shape(x)), axis)
+        limit = limit.reshape(limit.shape[: limit.ndim - nred] + (-1,))
+    data = data.reshape(data.shape[: data.ndim - nred] + (-1,))
+    res = raw_reduce(kind, data, detection_limit=limit, **kw)
+    return {k: (v.item() if np.ndim(v) == 0 else v) for k, v in res.items()}
+
+
+def fit(x: Any, *, axis: Any = None, detection_limit: Any = None, skipna: bool = True,
+        nonpositive: str = "raise", max_iter: int = 100, tol: float = 1e-10) -> dict[str, Any]:
+    """Log-normal MLE over ``axis`` (``mu``, ``sigma`` with ddof=0, ``n``, ``n_censored``, ``loglik``,
+    ``converged``, ...), left-censored at ``detection_limit`` (a number or an array of ``x``'s shape).
+
+    Examples
+    --------
+    >>> import numpy as np, logstats
+    >>> res = logstats.fit(np.array([0.0, 1.0, 2.0, 4.0, 8.0]), detection_limit=0.5)
+    >>> res["n_censored"], res["converged"]
+    (1, True)
+    """
+    return _raw("fit", x, axis, detection_limit=detection_limit, skipna=skipna, nonpositive=nonpositive,
+                max_iter=max_iter, tol=tol)
+
+
+def scale_check(x: Any, *, axis: Any = None, skipna: bool = True,
+                nonpositive: str = "raise") -> dict[str, Any]:
+    """Normal versus log-normal over ``axis`` on the original scale (AIC, normality p-values, ratios)."""
+    return _raw("scale_check", x, axis, skipna=skipna, nonpositive=nonpositive)
+
+
+def lognormal_mean(x: Any, *, axis: Any = None, method: str = "cox", confidence_level: float = 0.95,
+                   random_state: Any = None, n_draws: int = 10000, skipna: bool = True,
+                   nonpositive: str = "raise") -> dict[str, Any]:
+    """Arithmetic mean implied by a log-normal, ``exp(ȳ + s²/2)``, with a CI over ``axis``."""
+    return _raw("lognormal_mean", x, axis, method=method, confidence_level=confidence_level,
+                random_state=random_state, n_draws=n_draws, skipna=skipna, nonpositive=nonpositive)
 
 
 def log(x: Any, *, base: Any = "e", nonpositive: str = "raise") -> np.ndarray:

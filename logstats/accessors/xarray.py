@@ -15,7 +15,14 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from logstats.accessors._engine import INT_FIELDS, finalize, grouped_method, is_dask, stacked_moments
+from logstats.accessors._engine import (
+    CLOSED_FIT_STATUS,
+    INT_FIELDS,
+    finalize,
+    is_dask,
+    raw_reduce,
+    stacked_moments,
+)
 from logstats.accessors._face import FigureMethods
 from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
 
@@ -120,42 +127,36 @@ def _wrap(arr: Any, names: Sequence[str], plan: Plan, da: xr.DataArray, keep_att
         if keep_attrs and k in UNIT_FIELDS:
             attrs = dict(da.attrs)
         out[k] = xr.DataArray(v, dims=dims, coords=coords, attrs=attrs)
+    if "converged" in out:
+        out["converged"] = out["converged"].astype(bool)
+    if "status" in out:
+        out["status"] = xr.apply_ufunc(_status_names, out["status"], dask="parallelized",
+                                       output_dtypes=[object])
     return xr.Dataset(out)
+
+
+def _status_names(codes: np.ndarray) -> np.ndarray:
+    return np.asarray(CLOSED_FIT_STATUS, dtype=object)[np.asarray(codes).astype(np.intp)]
 
 
 def _raw_array(kind: str, da: xr.DataArray, name: Hashable, dim: Any, by: Hashable | None, *,
                skipna: bool, nonpositive: str, **kw: Any) -> xr.Dataset:
-    """Raw-value methods along ``dim``: every kept position and group solved in one flat pass.
-
-    Position ``r`` of the kept dims and group ``g`` become flat group ``r * G + g``, so the
-    statistics layer sees one 1-D problem however many channels or time points there are.
-    """
+    """Raw-value methods along ``dim`` (the data are loaded): the engine's one flat pass, rewrapped."""
     _check_value(da, name)
     plan = Plan(da, dim, by)
     data = np.asarray(da.transpose(*plan.kept, *plan.reduced).to_numpy(), dtype=np.float64)
-    lead = data.shape[: len(plan.kept)]
-    rows = int(np.prod(lead)) if lead else 1
-    flat = data.reshape(rows, -1)
-    width = flat.shape[1]
-    if plan.codes is None:
-        g, codes = 1, np.zeros(width, dtype=np.intp)
-    else:
-        g, codes = len(plan.labels or []), plan.codes
-    full = np.where(codes[None, :] >= 0, codes[None, :] + g * np.arange(rows)[:, None], -1).ravel()
+    data = data.reshape(data.shape[: len(plan.kept)] + (-1,))
     limit = kw.pop("detection_limit", None)
     if isinstance(limit, xr.DataArray):
-        limit = np.asarray(limit.transpose(*plan.kept, *plan.reduced).to_numpy(), dtype=np.float64).ravel()
-    if limit is not None:
-        kw["detection_limit"] = limit
-    labels = plan.labels if plan.labels is not None else None
-    res = grouped_method(kind, flat.ravel(), full, rows * g, where=_where(name),
-                         labels=(labels * rows) if labels is not None else None,
-                         nonpositive=nonpositive, skipna=skipna, **kw)
-    shape = lead + ((g,) if plan.by is not None else ())
+        limit = np.asarray(limit.transpose(*plan.kept, *plan.reduced).to_numpy(), dtype=np.float64)
+        limit = limit.reshape(data.shape)
+    ngroups = len(plan.labels) if plan.labels is not None else None
+    res = raw_reduce(kind, data, codes=plan.codes, ngroups=ngroups,
+                     where=_where(name), labels=plan.labels, nonpositive=nonpositive, skipna=skipna,
+                     detection_limit=limit, **kw)
     coords = plan.coords(da)
     out = {}
-    for k, v in res.items():
-        arr = np.asarray(v).reshape(shape)
+    for k, arr in res.items():
         attrs = dict(da.attrs) if k in UNIT_FIELDS else {}
         out[k] = xr.DataArray(arr, dims=plan.out_dims(), coords=coords, attrs=attrs)
     return xr.Dataset(out)
@@ -246,8 +247,14 @@ class _XarrayBase(FigureMethods):
 
         ``detection_limit`` is a number or the name of a coordinate (DataArray) or variable (Dataset)
         broadcastable against the data. Every position of the other dims is fitted in the same
-        vectorised pass. Dask-backed data are loaded (the censored likelihood needs every value).
+        vectorised pass. Without a detection limit the fit is the closed form from the log-moments,
+        so dask-backed data stay lazy; with one, dask-backed data are loaded (the censored likelihood
+        needs every value).
         """
+        if detection_limit is None:
+            return self._fields("fit", dim, by, False, skipna=skipna, nonpositive=nonpositive,
+                                params={"skipna": skipna, "nonpositive": nonpositive})
+
         def one(da: xr.DataArray, name: Hashable) -> xr.Dataset:
             limit: Any = detection_limit
             if isinstance(detection_limit, str):
@@ -272,7 +279,17 @@ class _XarrayBase(FigureMethods):
                        confidence_level: float = 0.95, random_state: Any = None, n_draws: int = 10000,
                        skipna: bool = True, nonpositive: str = "raise") -> xr.Dataset:
         """Arithmetic mean implied by a log-normal along ``dim`` with a CI (``"cox"``,
-        ``"modified_cox"``, ``"gci"``, ``"bootstrap"``; see the pandas ``lognormal_mean``)."""
+        ``"modified_cox"``, ``"gci"``, ``"bootstrap"``; see the pandas ``lognormal_mean``).
+
+        All but ``"bootstrap"`` need only the log-moments, so dask-backed data stay lazy (the GCI
+        draws are made for all groups at once, from the merged moments, so a dask result equals the
+        in-memory one for the same ``random_state``); the bootstrap loads the data.
+        """
+        if method != "bootstrap":
+            out = self._fields("lognormal_mean", dim, by, True, skipna=skipna, nonpositive=nonpositive,
+                               params={"method": method, "confidence_level": confidence_level,
+                                       "random_state": random_state, "n_draws": n_draws})
+            return out.assign(method=method)
         return self._tidy(self._each(lambda da, name: _raw_array(
             "lognormal_mean", da, name, dim, by, skipna=skipna, nonpositive=nonpositive, method=method,
             confidence_level=confidence_level, random_state=random_state, n_draws=n_draws)))

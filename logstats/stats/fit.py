@@ -28,6 +28,7 @@ from logstats.stats.estimate import _check_level, t_quantile
 __all__ = [
     "FIT_STATUSES",
     "LOGNORMAL_MEAN_METHODS",
+    "closed_form_fit",
     "fit_lognormal",
     "lognormal_mean",
     "scale_check",
@@ -309,7 +310,6 @@ def fit_lognormal(
     np.minimum.at(cmin, cg, cc)
 
     n = k + m
-    kf = k.astype(np.float64)
     ties = ymin == ymax
     poisoned = np.zeros(G, dtype=bool)
     status = np.full(G, "empty", dtype=object)
@@ -334,15 +334,14 @@ def fit_lognormal(
     n_iter = np.zeros(G, dtype=np.int64)
 
     # closed form (no censoring)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        s_ml = np.sqrt(m2 / kf)
-        mu[uncens] = ybar[uncens]
-        sigma[closed] = s_ml[closed]
-        sigma[degenerate] = 0.0
-        loglik[closed] = (-0.5 * kf * (_LOG_2PI + 1.0) - kf * np.log(s_ml) - kf * ybar)[closed]
-        loglik[degenerate] = np.inf
-        se_mu[closed] = (s_ml / np.sqrt(kf))[closed]
-        se_sigma[closed] = (s_ml / np.sqrt(2.0 * kf))[closed]
+    cf = closed_form_fit(dm)
+    mu[uncens] = ybar[uncens]
+    sigma[closed] = cf["sigma"][closed]
+    sigma[degenerate] = 0.0
+    loglik[closed] = cf["loglik"][closed]
+    loglik[degenerate] = np.inf
+    se_mu[closed] = cf["se_mu"][closed]
+    se_sigma[closed] = cf["se_sigma"][closed]
     converged[closed] = True
     status[closed] = "closed_form"
     status[degenerate] = "degenerate"
@@ -374,6 +373,28 @@ def fit_lognormal(
         "n_nonpositive": n_nonpos,
         "status": status,
     }
+
+
+def closed_form_fit(m: LogMoments) -> dict[str, np.ndarray]:
+    r"""The uncensored log-normal MLE from log-moments alone (any shape; NaN where ``n == 0``).
+
+    ``mu = ȳ``, ``sigma = sqrt(m2 / n)`` (ddof=0), ``loglik = −n/2·(ln 2π + 1) − n ln sigma − n ȳ`` on the
+    original scale (the last term is the Jacobian −Σ ln x), and the observed-information standard
+    errors ``se_mu = sigma/√n``, ``se_sigma = sigma/√(2n)``. Because it needs only moments, chunked
+    (dask) data can be fitted without loading: see the xarray ``fit``.
+    """
+    kf = np.asarray(m.n, dtype=np.float64)
+    ybar = np.asarray(m.mean_log, dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s_ml = np.sqrt(np.asarray(m.m2_log, dtype=np.float64) / kf)
+        loglik = -0.5 * kf * (_LOG_2PI + 1.0) - kf * np.log(s_ml) - kf * ybar
+        return {
+            "mu": ybar,
+            "sigma": s_ml,
+            "loglik": loglik,
+            "se_mu": s_ml / np.sqrt(kf),
+            "se_sigma": s_ml / np.sqrt(2.0 * kf),
+        }
 
 
 def _censored_newton(
