@@ -152,12 +152,22 @@ def moments_along(values: Any, axis: int | Sequence[int] | None = None, *, where
     temporaries then stay small and in cache (about 3x faster on 2e7 values), and the result agrees
     with the one-block computation to rounding (closer to the exact value when the last axis is strided).
     """
-    if logged is not None:
+    if logged is not None:  # logs given: nothing to refine from
         ndim = np.ndim(logged.y)
         return _moments_along(logged, tuple(range(ndim)) if axis is None else normalize_axes(axis, ndim))
     arr = np.asarray(values)
+    axes = tuple(range(arr.ndim)) if axis is None else normalize_axes(axis, arr.ndim)
+    m = _moments_along_blocks(arr, axes, where, chunk_values)
+
+    def of_logs(z: np.ndarray) -> LogMoments:
+        return _moments_along(LoggedValues(z, np.isnan(z), np.zeros(z.shape, dtype=bool)), axes)
+
+    return _refine_tight(m, arr, of_logs, lambda p: np.expand_dims(p, axes))
+
+
+def _moments_along_blocks(arr: np.ndarray, axes: tuple[int, ...], where: str,
+                          chunk_values: int) -> LogMoments:
     nd = arr.ndim
-    axes = tuple(range(nd)) if axis is None else normalize_axes(axis, nd)
     k = len(axes)
     if arr.size <= chunk_values or not axes or axes != tuple(range(nd - k, nd)):
         return _moments_along(to_logs(arr, where=where), axes, own_logs=True)
@@ -277,15 +287,54 @@ def moments_by_codes(values: Any, codes: Any, ngroups: int, *, where: str = "the
         chunk_rows = chunk_size(rows, ngroups)
     keyed_all = N == 0 or bool(codes.min() >= 0)
     if N <= chunk_rows:
-        return _grouped(to_logs(arr, where=where), codes, ngroups, keyed_all=keyed_all)
-    work = np.empty(rows * chunk_rows)  # the deviations of every chunk, in one reused buffer
-    out = None
-    for start in range(0, N, chunk_rows):
-        part = _grouped(to_logs(arr[..., start : start + chunk_rows], where=where),
-                        codes[start : start + chunk_rows], ngroups, keyed_all=keyed_all, work=work)
-        out = part if out is None else merge_two(out, part)
+        out = _grouped(to_logs(arr, where=where), codes, ngroups, keyed_all=keyed_all)
+    else:
+        work = np.empty(rows * chunk_rows)  # the deviations of every chunk, in one reused buffer
+        out = None
+        for start in range(0, N, chunk_rows):
+            part = _grouped(to_logs(arr[..., start : start + chunk_rows], where=where),
+                            codes[start : start + chunk_rows], ngroups, keyed_all=keyed_all, work=work)
+            out = part if out is None else merge_two(out, part)
     assert out is not None
-    return out
+    return _refine_tight(out, arr, lambda z: log_moments_by_codes(z, codes, ngroups),
+                         lambda p: np.take(p, codes, axis=-1))
+
+
+#: Relative spread of the logs below which the rounding of ``np.log`` itself (about ``eps·|ln x|`` per
+#: value) would dominate the deviations; such elements are recomputed from a pivot with ``log1p``.
+TIGHT = 1e-3
+
+
+def _pivot_logs(x: np.ndarray, p: np.ndarray) -> np.ndarray:
+    """``ln x − ln p`` accurate to rounding of the *deviation*: ``log1p((x − p)/p)`` near the pivot
+    (``x − p`` is exact there, Sterbenz), ``ln x − ln p`` elsewhere; NaN where ``x`` is not positive."""
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        r = (x - p) / p
+        z = np.where(np.abs(r) < 0.5, np.log1p(r), np.log(x) - np.log(p))
+    return np.where((x > 0) & np.isfinite(x), z, np.nan)
+
+
+def _refine_tight(m: LogMoments, values: np.ndarray, moments_of: Any, spread: Any) -> LogMoments:
+    """Recompute mean and m2 where the logs are tightly clustered (sd < ``TIGHT``·|mean|).
+
+    There the deviations ``ln xᵢ − ȳ`` are ~1e-8 while ``np.log`` rounds each ``ln xᵢ`` by ~1e-15, so the
+    sum of squares would carry that rounding (1e-7 relative on NIST StRD NumAcc4). Taking the logs
+    relative to a pivot ``p = exp(ȳ)`` with ``log1p`` keeps every deviation to full precision. This is
+    the rare path: ordinary data never take it.
+    """
+    n = np.asarray(m.n)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        tight = (n > 1) & (np.sqrt(np.asarray(m.m2_log) / np.maximum(n, 1)) < TIGHT * np.abs(m.mean_log))
+    if not tight.any():
+        return m
+    x = np.asarray(values, dtype=np.float64)
+    pivot = np.exp(np.where(tight, m.mean_log, 0.0))
+    z = _pivot_logs(x, spread(pivot))
+    mz = moments_of(z)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        mean = np.where(tight, np.log(pivot) + mz.mean_log, m.mean_log)
+    return LogMoments(n=m.n, mean_log=mean, m2_log=np.where(tight, mz.m2_log, m.m2_log),
+                      n_missing=m.n_missing, n_nonpositive=m.n_nonpositive, n_censored=m.n_censored)
 
 
 def log_moments_by_codes(logs: Any, codes: Any, ngroups: int) -> LogMoments:
