@@ -130,3 +130,19 @@ def test_within_strata(screen):
     y0 = np.log(sub.loc[sub.treatment == "vehicle", "gfp"])
     assert out.loc[(2, "cmpd_1"), "p_value"] == pytest.approx(stats.ttest_ind(y, y0, equal_var=False).pvalue,
                                                              rel=1e-9)
+
+
+def test_xarray_kept_dims_are_separate_families(screen):
+    # a second channel: each channel is its own comparison (and its own Holm family), as if run alone
+    rng = np.random.default_rng(3)
+    two = np.stack([screen["gfp"].to_numpy(), screen["gfp"].to_numpy() * rng.lognormal(0, 0.3, len(screen))], 1)
+    da = xr.DataArray(two, dims=("cell", "channel"), coords={
+        "channel": ["gfp", "rfp"], "treatment": ("cell", screen["treatment"].to_numpy()),
+        "well": ("cell", screen["well"].to_numpy())})
+    both = da.logstats.fold_change("cell", by="treatment", reference="vehicle", replicate="well")
+    assert both["ratio"].dims == ("channel", "treatment")
+    for ch in ["gfp", "rfp"]:
+        alone = da.sel(channel=ch).logstats.fold_change("cell", by="treatment", reference="vehicle",
+                                                        replicate="well")
+        for k in ["ratio", "ci_low", "p_value", "p_adjusted"]:
+            np.testing.assert_allclose(both[k].sel(channel=ch), alone[k], rtol=1e-13)

@@ -263,3 +263,19 @@ def raw_reduce(kind: str, data: np.ndarray, *, codes: np.ndarray | None = None, 
                          nonpositive=nonpositive, skipna=skipna, **kw)
     shape = lead + ((g,) if codes is not None else ())
     return {k: np.asarray(v).reshape(shape) for k, v in res.items()}
+
+
+def fold_change(values: np.ndarray, level_codes: np.ndarray, n_levels: int, reference: int, *,
+                labels: Sequence[Any], where: str, nonpositive: str = "raise", skipna: bool = True,
+                stratum_codes: np.ndarray | None = None, n_strata: int = 1,
+                **kw: Any) -> dict[str, np.ndarray]:
+    """Fold changes of every level against ``reference`` for all strata at once, with the shared
+    policy (``nonpositive="raise"`` refuses, naming the levels); shapes ``(n_strata, n_levels)``."""
+    from logstats.stats.compare import fold_change_codes
+
+    check_nonpositive(nonpositive)
+    res = fold_change_codes(values, level_codes, n_levels, reference, stratum_codes=stratum_codes,
+                            n_strata=n_strata, nonpositive="drop" if nonpositive == "raise" else nonpositive,
+                            skipna=skipna, where=where, **kw)
+    raise_for_counts(res["n_nonpositive"], nonpositive=nonpositive, where=where, labels=labels)
+    return res

@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from logstats.accessors._engine import INT_FIELDS, finalize, grouped_method, stacked_moments
+from logstats.accessors._engine import fold_change as engine_fold_change
 from logstats.accessors._face import FigureMethods
 from logstats.accessors._labels import Groups, column_values, factorize_keys, resolve_keys, value_columns
 from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
@@ -334,8 +335,6 @@ class _PandasBase(FigureMethods):
         >>> df.logstats.fold_change(by="arm", reference="ctl")["ratio"].round(6).tolist()
         [2.0]
         """
-        from logstats.stats.compare import fold_change_codes
-
         check_nonpositive(nonpositive)
         if by is None:
             raise ValueError("fold_change needs by= (the column whose levels are compared)")
@@ -365,20 +364,12 @@ class _PandasBase(FigureMethods):
         frames = []
         keep = [i for i in range(len(levels)) if i != ref]
         for col in cols:
-            res = fold_change_codes(
-                column_values(df[col], col), groups.codes, groups.ngroups, ref,
-                replicate_codes=rep_codes, n_replicates=n_rep, paired=paired,
-                stratum_codes=strat_codes, n_strata=n_strata, equal_var=equal_var,
-                confidence_level=confidence_level, adjust=adjust, equivalence=equivalence,
-                equivalence_alpha=equivalence_alpha,
-                nonpositive="drop" if nonpositive == "raise" else nonpositive, skipna=skipna,
-                where=_where(col))
-            if nonpositive == "raise" and np.asarray(res["n_nonpositive"]).sum():
-                counts = np.asarray(res["n_nonpositive"]).sum(axis=0)
-                from logstats.core.transform import nonpositive_message
-
-                raise ValueError(nonpositive_message(
-                    _where(col), int(counts.sum()), [levels[i] for i in np.flatnonzero(counts)]))
+            res = engine_fold_change(
+                column_values(df[col], col), groups.codes, groups.ngroups, ref, labels=levels,
+                where=_where(col), nonpositive=nonpositive, skipna=skipna, stratum_codes=strat_codes,
+                n_strata=n_strata, replicate_codes=rep_codes, n_replicates=n_rep, paired=paired,
+                equal_var=equal_var, confidence_level=confidence_level, adjust=adjust,
+                equivalence=equivalence, equivalence_alpha=equivalence_alpha)
             fields = {k: np.asarray(v)[:, keep].reshape(-1) for k, v in res.items() if k != "log_ratio"}
             fields["unit"] = np.full(len(keep) * n_strata, "replicate" if replicate is not None else "value")
             level_index = groups.index.take(keep)

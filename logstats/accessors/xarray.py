@@ -23,6 +23,9 @@ from logstats.accessors._engine import (
     raw_reduce,
     stacked_moments,
 )
+from logstats.accessors._engine import (
+    fold_change as engine_fold_change,
+)
 from logstats.accessors._face import FigureMethods
 from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
 
@@ -307,8 +310,6 @@ class _XarrayBase(FigureMethods):
         kept; the result has a dim named ``by`` holding the non-reference levels. Dask-backed data
         are loaded one variable at a time (the test needs every value of a group together).
         """
-        from logstats.stats.compare import fold_change_codes
-
         check_nonpositive(nonpositive)
 
         def one(da: xr.DataArray, name: Hashable) -> xr.Dataset:
@@ -329,32 +330,25 @@ class _XarrayBase(FigureMethods):
             elif paired:
                 raise ValueError("paired=True needs replicate= (the coordinate shared by paired replicates)")
             data = np.asarray(da.transpose(*plan.kept, *plan.reduced).to_numpy())
-            rows = data.reshape(-1, data.shape[-1])
+            rows, width = int(np.prod(data.shape[:-1])), data.shape[-1]
             keep = [i for i in range(len(plan.labels)) if i != ref]
-            results = []
-            for r in range(rows.shape[0]):  # one test per position of the kept dims, not per group
-                res = fold_change_codes(
-                    rows[r], plan.codes, len(plan.labels), ref, replicate_codes=rep_codes,
-                    n_replicates=n_rep, paired=paired, equal_var=equal_var,
-                    confidence_level=confidence_level, adjust=adjust, equivalence=equivalence,
-                    equivalence_alpha=equivalence_alpha,
-                    nonpositive="drop" if nonpositive == "raise" else nonpositive, skipna=skipna,
-                    where=_where(name))
-                if nonpositive == "raise" and np.asarray(res["n_nonpositive"]).sum():
-                    from logstats.core.transform import nonpositive_message
-
-                    counts = np.asarray(res["n_nonpositive"]).sum(axis=0)
-                    raise ValueError(nonpositive_message(_where(name), int(counts.sum()),
-                                                         [plan.labels[i] for i in np.flatnonzero(counts)]))
-                results.append(res)
+            # every position of the kept dims is a stratum of its own: one vectorised call for all
+            rep_tiled = None if rep_codes is None else np.tile(rep_codes, rows)
+            res = engine_fold_change(
+                data.reshape(-1), np.tile(plan.codes, rows), len(plan.labels), ref, labels=plan.labels,
+                where=_where(name), nonpositive=nonpositive, skipna=skipna,
+                stratum_codes=np.repeat(np.arange(rows, dtype=np.intp), width), n_strata=rows,
+                replicate_codes=rep_tiled, n_replicates=n_rep, paired=paired, equal_var=equal_var,
+                confidence_level=confidence_level, adjust=adjust, equivalence=equivalence,
+                equivalence_alpha=equivalence_alpha)
             shape = data.shape[:-1] + (len(keep),)
             coords = plan.coords(da)
             coords[by] = plan.group_index.take(keep)
             out = {}
-            for k in results[0]:
+            for k in res:
                 if k == "log_ratio":
                     continue
-                v = np.stack([np.asarray(r_[k])[0, keep] for r_ in results]).reshape(shape)
+                v = np.asarray(res[k])[:, keep].reshape(shape)
                 out[k] = xr.DataArray(v, dims=plan.out_dims(), coords=coords)
             return xr.Dataset(out)
 
