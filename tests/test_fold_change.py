@@ -135,7 +135,8 @@ def test_within_strata(screen):
 def test_xarray_kept_dims_are_separate_families(screen):
     # a second channel: each channel is its own comparison (and its own Holm family), as if run alone
     rng = np.random.default_rng(3)
-    two = np.stack([screen["gfp"].to_numpy(), screen["gfp"].to_numpy() * rng.lognormal(0, 0.3, len(screen))], 1)
+    gfp = screen["gfp"].to_numpy()
+    two = np.stack([gfp, gfp * rng.lognormal(0, 0.3, len(screen))], 1)
     da = xr.DataArray(two, dims=("cell", "channel"), coords={
         "channel": ["gfp", "rfp"], "treatment": ("cell", screen["treatment"].to_numpy()),
         "well": ("cell", screen["well"].to_numpy())})
