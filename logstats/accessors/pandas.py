@@ -7,6 +7,7 @@ with the group labels. A Series is handled as a one-column frame, so both share 
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Callable, Hashable
 from typing import Any
 
@@ -82,22 +83,15 @@ class _PandasBase(FigureMethods):
             results.append((col, arr))
         return results, names, groups
 
-    def _per_column(self, fn: Callable[..., dict[str, np.ndarray]], by: Any, columns: Any, *,
-                    observed: bool = True, dropna: bool = True, sort: bool = True,
-                    extra: Callable[[pd.DataFrame, Groups | None], dict[str, Any]] | None = None,
-                    **kw: Any) -> pd.DataFrame | pd.Series:
-        """Run a statistics function ``fn(values, codes, ngroups, **kw)`` column by column; tidy result."""
-        df, cols, groups = self._setup(by, columns, observed, dropna, sort)
-        n = len(df)
-        codes = groups.codes if groups is not None else np.zeros(n, dtype=np.intp)
+    def _per_column(self, fn: Callable[..., dict[str, np.ndarray]], df: pd.DataFrame, cols: list[Hashable],
+                    groups: Groups | None, **kw: Any) -> pd.DataFrame | pd.Series:
+        """Run ``fn(values, codes, ngroups, where=, labels=, **kw)`` column by column; tidy result."""
+        codes = groups.codes if groups is not None else np.zeros(len(df), dtype=np.intp)
         ngroups = groups.ngroups if groups is not None else 1
-        more = extra(df, groups) if extra is not None else {}
-        frames = []
-        for col in cols:
-            fields = fn(column_values(df[col], col), codes, ngroups, where=_where(col),
-                        labels=groups.labels if groups is not None else None, **more, **kw)
-            frames.append((col, fields))
-        return self._tidy(frames, groups)
+        labels = groups.labels if groups is not None else None
+        results = [(col, fn(column_values(df[col], col), codes, ngroups, where=_where(col), labels=labels,
+                            **kw)) for col in cols]
+        return self._tidy(results, groups)
 
     def _tidy(self, results: list[tuple[Hashable, dict[str, np.ndarray]]], groups: Groups | None
               ) -> pd.DataFrame | pd.Series:
@@ -226,8 +220,8 @@ class _PandasBase(FigureMethods):
         if linear:
             from logstats.stats.estimate import linear_fields
 
-            lin = self._per_column(linear_fields, by, columns, observed=observed, dropna=dropna,
-                                   sort=sort, ddof=ddof, skipna=skipna, nonpositive=nonpositive)
+            lin = self._per_column(linear_fields, *self._setup(by, columns, observed, dropna, sort),
+                                   ddof=ddof, skipna=skipna, nonpositive=nonpositive)
             if isinstance(out, pd.Series):
                 out = pd.concat([out, lin])
             else:
@@ -299,12 +293,7 @@ class _PandasBase(FigureMethods):
 
     def _raw_method(self, kind: str, df: pd.DataFrame, cols: list[Hashable], groups: Groups | None,
                     **kw: Any) -> Any:
-        codes = groups.codes if groups is not None else np.zeros(len(df), dtype=np.intp)
-        ngroups = groups.ngroups if groups is not None else 1
-        labels = groups.labels if groups is not None else None
-        results = [(col, grouped_method(kind, column_values(df[col], col), codes, ngroups,
-                                        where=_where(col), labels=labels, **kw)) for col in cols]
-        return self._tidy(results, groups)
+        return self._per_column(functools.partial(grouped_method, kind), df, cols, groups, **kw)
 
     def fold_change(self, by: Any, reference: Any, *, columns: Any = None, replicate: Any = None,
                     paired: bool = False, within: Any = None, equal_var: bool = False,
