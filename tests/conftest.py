@@ -4,9 +4,16 @@ from __future__ import annotations
 
 import contextlib
 import importlib.util
+import os
 
 import numpy as np
 import pytest
+from hypothesis import settings
+
+# CI runs the property tests on a fixed sequence of examples, so a landing never depends on luck;
+# locally they explore fresh examples each run (HYPOTHESIS_PROFILE=ci reproduces CI).
+settings.register_profile("ci", derandomize=True, print_blob=True)
+settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci" if os.environ.get("CI") else "default"))
 
 HAS_DASK = importlib.util.find_spec("dask") is not None
 requires_dask = pytest.mark.skipif(not HAS_DASK, reason="dask is not installed")
