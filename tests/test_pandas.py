@@ -169,3 +169,12 @@ def test_no_runtime_warnings_on_zeros():
         warnings.simplefilter("error")
         df.logstats.summary(by="g", nonpositive="drop")
         df.logstats.gsd(by="g", nonpositive="nan")
+
+
+@pytest.mark.parametrize("keys", [["b", "a", "b"], [2, 1, 2], [2.5, 1.5, 2.5]])
+def test_group_index_matches_pandas_groupby_for_object_keys(keys):
+    # pandas groupby infers the result index dtype of an object key column (str, int64, float64)
+    df = pd.DataFrame({"g": pd.Series(keys, dtype=object), "x": [1.0, 2.0, 3.0]})
+    ours = df.logstats.gmean(by="g")["x"]
+    ref = df.groupby("g")["x"].agg(stats.gmean)  # scipy per group through pandas groupby
+    pd.testing.assert_series_equal(ours, ref, check_names=False, rtol=1e-14)

@@ -117,6 +117,8 @@ def factorize_keys(keys: Sequence[pd.Series], *, observed: bool = True, dropna: 
                 codes, levels = pd.factorize(key, sort=sort, use_na_sentinel=True)
                 codes = np.asarray(codes, dtype=np.intp)
                 levels = pd.Index(levels)
+                if levels.dtype == object:
+                    levels = levels.infer_objects()  # as groupby does: object strings -> str, ints -> int64
         if not dropna and (codes < 0).any():
             codes = np.where(codes < 0, len(levels), codes)
             levels = levels.append(pd.Index([np.nan]))
