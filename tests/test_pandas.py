@@ -178,3 +178,18 @@ def test_group_index_matches_pandas_groupby_for_object_keys(keys):
     ours = df.logstats.gmean(by="g")["x"]
     ref = df.groupby("g")["x"].agg(stats.gmean)  # scipy per group through pandas groupby
     pd.testing.assert_series_equal(ours, ref, check_names=False, rtol=1e-14)
+
+
+def test_combine_series_and_dataset_moments():
+    # Chan et al. (1979) merge against the one-pass moments of the whole (numpy reference via logstats)
+    x = np.random.default_rng(6).lognormal(size=200)
+    s = pd.Series(x, name="v")
+    merged = logstats.combine_moments([s[:77].logstats.moments(), s[77:].logstats.moments()])
+    whole = s.logstats.moments()
+    assert merged["n"] == 200 and merged.name == "v"
+    assert merged["m2_log"] == pytest.approx(whole["m2_log"], rel=1e-12)
+    import xarray as xr
+
+    da = xr.DataArray(x.reshape(100, 2), dims=("cell", "ch"))
+    mds = logstats.combine_moments([da[:30].logstats.moments("cell"), da[30:].logstats.moments("cell")])
+    xr.testing.assert_allclose(mds, da.logstats.moments("cell"), rtol=1e-12)

@@ -153,6 +153,12 @@ def combine_moments(parts: Iterable[Any]) -> Any:
     if mod.startswith("pandas"):
         import pandas as pd
 
+        if isinstance(first, pd.Series):  # a Series accessor's moments(): one set of fields
+            merged = combine_moments([p.to_frame().T for p in items])
+            out = merged.iloc[0]
+            out.name = first.name
+            return out
+
         index = items[0].index
         for p in items[1:]:
             index = index.union(p.index, sort=False)
