@@ -553,13 +553,12 @@ def fold_change_codes(
     base = np.where(keyed, sc * L + lc, -1)  # flat (stratum, level) index
     SL = S * L
 
-    extra: dict[str, np.ndarray] = {}
+    common: dict[str, Any] = dict(paired=paired, equal_var=equal_var, confidence_level=cl, adjust=adjust,
+                  equivalence=equivalence, equivalence_alpha=equivalence_alpha, nonpositive=nonpositive,
+                  skipna=skipna)
     if replicate_codes is None:
         cells = moments_by_codes(vals, base, SL, where=where)
-        n_cells = np.asarray(cells.n, dtype=np.int64)
-        n_missing = np.asarray(cells.n_missing, dtype=np.int64)
-        n_nonpos = np.asarray(cells.n_nonpositive, dtype=np.int64)
-        unit_n, unit_mean, unit_m2 = cells.n, cells.mean_log, cells.m2_log
+        return fold_change_moments(cells, np.arange(SL), L, ref, n_strata=S, **common)
     else:
         if n_replicates is None:
             raise ValueError("replicate_codes needs n_replicates (the number of replicate labels)")
@@ -572,15 +571,80 @@ def fold_change_codes(
             )
         rc = _check_codes(replicate_codes, N, R, "replicate_codes", "n_replicates")
         has_rep = keyed & (rc >= 0)
-        extra["n_no_replicate"] = np.bincount(base[keyed & (rc < 0)], minlength=SL).astype(np.int64)
         key = base[has_rep] * np.int64(R) + rc[has_rep]
         uniq, inv = np.unique(key, return_inverse=True)
         K = uniq.size
         codes = np.full(N, -1, dtype=np.intp)
         codes[has_rep] = inv.ravel()
         rep = moments_by_codes(vals, codes, K, where=where)  # one pass: every (stratum, level, replicate)
-        sl = (uniq // R).astype(np.intp)
-        rr = uniq % R
+        n_no_rep = np.bincount(base[keyed & (rc < 0)], minlength=SL).astype(np.int64)
+        return fold_change_moments(rep, (uniq // R).astype(np.intp), L, ref, n_strata=S,
+                                   replicate=uniq % R, n_replicates=R, n_no_replicate=n_no_rep, **common)
+
+
+def fold_change_moments(
+    m: LogMoments,
+    cell: Any,
+    n_levels: int,
+    reference: int,
+    *,
+    n_strata: int = 1,
+    replicate: Any = None,
+    n_replicates: int | None = None,
+    n_no_replicate: Any = None,
+    paired: bool = False,
+    equal_var: bool = False,
+    confidence_level: float = 0.95,
+    adjust: str | None = "holm",
+    equivalence: tuple[float, float] | None = None,
+    equivalence_alpha: float = 0.05,
+    nonpositive: str = "drop",
+    skipna: bool = True,
+) -> dict[str, np.ndarray]:
+    """The test stage of :func:`fold_change_codes`, from log-moments of cells or replicates.
+
+    ``m`` holds one set of moments per row; ``cell`` gives each row's flat (stratum, level) index
+    ``stratum * n_levels + level``. Without ``replicate`` the rows are the values of each cell (every
+    value is a unit); with ``replicate`` (each row's replicate code in ``0 .. n_replicates − 1``) every
+    row is one replicate, its unit value the mean of its logs. Because only moments enter, moments
+    built chunk by chunk (dask partitions merged with Chan's update) give the same test as raw values.
+    Same outputs as :func:`fold_change_codes`.
+    """
+    check_nonpositive(nonpositive)
+    adjust = _check_method(adjust, "adjust")
+    cl = _check_level(confidence_level)
+    _check_equivalence(equivalence, equivalence_alpha)
+    L, S = int(n_levels), int(n_strata)
+    ref = int(reference)
+    if L < 1 or S < 1 or not 0 <= ref < L:
+        raise ValueError(f"need n_levels >= 1, n_strata >= 1 and 0 <= reference < n_levels; "
+                         f"got {L}, {S}, {ref}")
+    if paired and replicate is None:
+        raise ValueError("paired=True needs replicate= (each row's replicate code)")
+    SL = S * L
+    sl = np.asarray(cell, dtype=np.intp).ravel()
+    extra: dict[str, np.ndarray] = {}
+    if replicate is None:
+        # rows may cover only the cells that occur (merged partitions): lay them out over all cells
+        def full(v: Any, fill: float) -> np.ndarray:
+            out = np.full(SL, fill)
+            out[sl] = np.asarray(v, dtype=np.float64).ravel()
+            return out
+
+        n_cells = full(m.n, 0).astype(np.int64)
+        n_missing = full(m.n_missing, 0).astype(np.int64)
+        n_nonpos = full(m.n_nonpositive, 0).astype(np.int64)
+        unit_n, unit_mean, unit_m2 = n_cells, full(m.mean_log, np.nan), full(m.m2_log, np.nan)
+    else:
+        R = int(n_replicates or 0)
+        rr = np.asarray(replicate, dtype=np.int64).ravel()
+        uniq = sl.astype(np.int64) * np.int64(R) + rr
+        order = np.argsort(uniq, kind="stable")  # the partner search below needs sorted keys
+        uniq, sl, rr = uniq[order], sl[order], rr[order]
+        rep = m.take(order)
+        K = uniq.size
+        extra["n_no_replicate"] = (np.zeros(SL, dtype=np.int64) if n_no_replicate is None
+                                   else np.asarray(n_no_replicate, dtype=np.int64).reshape(SL))
 
         def per_level(a: np.ndarray) -> np.ndarray:
             return np.bincount(sl, weights=np.asarray(a, dtype=np.float64), minlength=SL).astype(np.int64)
