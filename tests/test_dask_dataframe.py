@@ -216,3 +216,26 @@ def test_registration_is_idempotent_and_optional(monkeypatch):
     monkeypatch.setitem(sys.modules, "dask.dataframe", None)  # as if dask were not installed
     assert register_dask_dataframe() is False
     assert logstats.gmean([1.0, 100.0]) == pytest.approx(10.0)  # the rest keeps working
+
+
+@pytest.mark.parametrize("kw", [
+    {},
+    {"replicate": "well"},
+    {"replicate": "day", "paired": True, "adjust": "bh"},
+    {"within": "line", "equivalence": (0.8, 1.25)},
+])
+def test_fold_change_equals_pandas(kw):
+    # reference: the pandas accessor on the same rows (itself checked against scipy in test_fold_change)
+    rng = np.random.default_rng(12)
+    n = 4000
+    df = pd.DataFrame({
+        "arm": rng.choice(["ctl", "a", "b"], n), "day": rng.integers(0, 4, n),
+        "line": rng.choice(["L1", "L2"], n),
+        "x": rng.lognormal(2.0, 0.7, n), "y": rng.lognormal(1.0, 0.3, n)})
+    df["well"] = df["arm"] + "-" + df["day"].astype(str)
+    ddf = dd.from_pandas(df, npartitions=6)
+    with raise_if_dask_computes():
+        lazy = ddf.logstats.fold_change(by="arm", reference="ctl", columns=["x", "y"], **kw)
+    got = lazy.compute()
+    want = df.logstats.fold_change(by="arm", reference="ctl", columns=["x", "y"], **kw)
+    pd.testing.assert_frame_equal(got, want, rtol=1e-11, check_index_type=False)

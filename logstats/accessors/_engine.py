@@ -279,3 +279,17 @@ def fold_change(values: np.ndarray, level_codes: np.ndarray, n_levels: int, refe
                             skipna=skipna, where=where, **kw)
     raise_for_counts(res["n_nonpositive"], nonpositive=nonpositive, where=where, labels=labels)
     return res
+
+
+def fold_change_from_moments(m: LogMoments, cell: np.ndarray, n_levels: int, reference: int, *,
+                             labels: Sequence[Any], where: str, nonpositive: str = "raise",
+                             skipna: bool = True, **kw: Any) -> dict[str, np.ndarray]:
+    """:func:`fold_change` for moments already built per cell or per replicate (dask partitions)."""
+    from logstats.stats.compare import fold_change_moments
+
+    check_nonpositive(nonpositive)
+    res = fold_change_moments(m, cell, n_levels, reference,
+                              nonpositive="drop" if nonpositive == "raise" else nonpositive,
+                              skipna=skipna, **kw)
+    raise_for_counts(res["n_nonpositive"], nonpositive=nonpositive, where=where, labels=labels)
+    return res

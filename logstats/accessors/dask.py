@@ -270,6 +270,75 @@ def _lazy_reduce(ddf: Any, kind: str, by: Any, columns: Any, *, key_names: list[
     return dd.from_delayed([result], meta=template, verify_meta=False)
 
 
+@dataclass(frozen=True)
+class _FoldRequest:
+    by: Any
+    reference: Any
+    replicate: Any
+    within: list[Any]
+    columns: list[Any]
+    options: dict[str, Any]
+
+
+def _fold_finish(merged: tuple[Any, int], req: _FoldRequest) -> Any:
+    """Merged moments per (within..., by[, replicate]) to the fold-change table of the pandas accessor."""
+    import warnings
+
+    import pandas as pd
+
+    from logstats.accessors._engine import fold_change_from_moments
+    from logstats.accessors.pandas import fold_change_frame
+    from logstats.core.transform import LogstatsWarning, describe_where
+
+    table, n_unkeyed = merged
+    keys = req.within + [req.by] + ([req.replicate] if req.replicate is not None else [])
+    if n_unkeyed:
+        warnings.warn(f"{n_unkeyed} row(s) have a missing value in the key(s) {keys!r} and are left out, "
+                      f"{_UNKEYED_HINT}", LogstatsWarning, stacklevel=2)
+    several = len(req.columns) > 1
+
+    def column_table(col: Any) -> Any:
+        if not several:
+            return table
+        sub = table[table.index.get_level_values("variable") == col]
+        return sub.set_axis(sub.index.droplevel("variable"), axis=0)
+
+    def key_values(idx: Any, name: Any) -> Any:
+        return idx.get_level_values(name) if isinstance(idx, pd.MultiIndex) else idx
+
+    _, level_labels = pd.factorize(key_values(column_table(req.columns[0]).index, req.by), sort=True)
+    levels = list(level_labels)
+    if req.reference not in levels:
+        raise ValueError(f"reference={req.reference!r} is not a level of {req.by!r}; "
+                         f"the levels are {levels!r}")
+    results = []
+    strata_index = None
+    for col in req.columns:
+        sub = column_table(col)
+        idx = sub.index
+        lcodes = level_labels.get_indexer(pd.Index(key_values(idx, req.by)))
+        if req.within:
+            strata = pd.MultiIndex.from_arrays([idx.get_level_values(w) for w in req.within])
+            scodes, sidx = pd.factorize(strata, sort=True)
+            strata_index = pd.MultiIndex.from_tuples(list(sidx), names=req.within) if len(req.within) > 1 \
+                else pd.Index([t[0] for t in sidx], name=req.within[0])
+            n_strata = len(sidx)
+        else:
+            scodes, n_strata = np.zeros(len(idx), dtype=np.intp), 1
+        kw = dict(req.options)
+        if req.replicate is not None:
+            rcodes, rlabels = pd.factorize(key_values(idx, req.replicate), sort=True)
+            kw.update(replicate=rcodes, n_replicates=len(rlabels))
+        m = LogMoments(**{f: sub[f].to_numpy() for f in FIELDS})
+        cell = np.asarray(scodes, dtype=np.intp) * len(levels) + lcodes
+        results.append((col, fold_change_from_moments(
+            m, cell, len(levels), levels.index(req.reference), labels=levels,
+            where=describe_where(column=str(col)), n_strata=n_strata, **kw)))
+    level_index = pd.Index(level_labels, name=req.by)
+    return fold_change_frame(results, level_index, levels.index(req.reference), strata_index,
+                             "replicate" if req.replicate is not None else "value")
+
+
 class _DaskFrameBase:
     """Shared by the dask DataFrame and Series accessors: build the lazy per-partition reduction."""
 
@@ -350,6 +419,47 @@ class LogstatsDaskFrameAccessor(_DaskFrameBase):
         if not isinstance(obj, dd.DataFrame):
             raise AttributeError("the logstats dask DataFrame accessor needs a dask DataFrame")
         self._obj = obj
+
+    def fold_change(self, by: Any, reference: Any, *, columns: Any = None, replicate: Any = None,
+                    paired: bool = False, within: Any = None, equal_var: bool = False,
+                    confidence_level: float = 0.95, adjust: str | None = "holm",
+                    equivalence: tuple[float, float] | None = None, equivalence_alpha: float = 0.05,
+                    skipna: bool = True, nonpositive: str = "raise", observed: bool = True,
+                    dropna: bool = True, split_every: int | None = None) -> Any:
+        """The pandas ``fold_change`` on a dask DataFrame, from per-partition moments (lazy).
+
+        Every partition is reduced to log-moments per (``within``..., ``by``[, ``replicate``]); the
+        tables are merged exactly and the test runs on the merged moments
+        (:func:`logstats.stats.compare.fold_change_moments`), so the result equals the pandas one on
+        the same rows. Returns a ``dask.delayed.Delayed``; ``.compute()`` gives the pandas table. Rows
+        whose replicate label is missing are left out with the other missing keys (counted in the
+        warning) rather than in ``n_no_replicate``.
+        """
+        from dask import delayed
+
+        from logstats.accessors._labels import resolve_keys, value_columns
+        from logstats.core.transform import check_nonpositive
+
+        check_nonpositive(nonpositive)
+        if paired and replicate is None:
+            raise ValueError("paired=True needs replicate= (the label shared by paired replicates)")
+        within_list = [] if within is None else (within if isinstance(within, list) else [within])
+        keys = within_list + [by] + ([replicate] if replicate is not None else [])
+        meta = self._obj._meta
+        resolve_keys(meta, keys)  # a KeyError naming the column, before anything is built
+        cols = value_columns(meta, columns, exclude=keys)
+        req = _FoldRequest(by=by, reference=reference, replicate=replicate, within=within_list, columns=cols,
+                           options=dict(paired=paired, equal_var=equal_var, confidence_level=confidence_level,
+                                        adjust=adjust, equivalence=equivalence,
+                                        equivalence_alpha=equivalence_alpha, skipna=skipna,
+                                        nonpositive=nonpositive))
+        part_kw: dict[str, Any] = {"by": keys, "columns": cols, "observed": observed, "dropna": dropna}
+        parts = [delayed(_partition_moments, pure=True)(p, **part_kw) for p in self._obj.to_delayed()]
+        k = max(int(split_every or SPLIT_EVERY), 2)
+        while len(parts) > 1:
+            parts = [delayed(_merge_partitions, pure=True)(*parts[i : i + k])
+                     for i in range(0, len(parts), k)]
+        return delayed(_fold_finish, pure=True)(parts[0], req)
 
 
 class LogstatsDaskSeriesAccessor(_DaskFrameBase):

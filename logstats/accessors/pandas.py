@@ -350,34 +350,16 @@ class _PandasBase(FigureMethods):
             sg = factorize_keys(resolve_keys(self._obj, within), observed=observed, dropna=dropna,
                                 sort=True)
             strat_codes, n_strata, strata_index = sg.codes, sg.ngroups, sg.index
-        frames = []
-        keep = [i for i in range(len(levels)) if i != ref]
+        results = []
         for col in cols:
-            res = engine_fold_change(
+            results.append((col, engine_fold_change(
                 column_values(df[col], col), groups.codes, groups.ngroups, ref, labels=levels,
                 where=_where(col), nonpositive=nonpositive, skipna=skipna, stratum_codes=strat_codes,
                 n_strata=n_strata, replicate_codes=rep_codes, n_replicates=n_rep, paired=paired,
                 equal_var=equal_var, confidence_level=confidence_level, adjust=adjust,
-                equivalence=equivalence, equivalence_alpha=equivalence_alpha)
-            fields = {k: np.asarray(v)[:, keep].reshape(-1) for k, v in res.items() if k != "log_ratio"}
-            fields["unit"] = np.full(len(keep) * n_strata, "replicate" if replicate is not None else "value")
-            level_index = groups.index.take(keep)
-            if strata_index is None:
-                index = level_index
-            else:
-                parts = [strata_index.get_level_values(i).repeat(len(keep))
-                         for i in range(strata_index.nlevels)]
-                index = pd.MultiIndex.from_arrays(
-                    parts + [np.tile(np.asarray(level_index, dtype=object), n_strata)],
-                    names=list(strata_index.names) + [groups.names[0]])
-            frames.append((col, fields, index))
-        out = [tidy_frame(f, idx) for _, f, idx in frames]
-        if "equivalent" in out[0]:
-            for o in out:
-                o["equivalent"] = o["equivalent"].astype(bool)
-        if len(out) == 1:
-            return out[0]
-        return pd.concat(out, keys=[c for c, _, _ in frames], names=["variable"]).pipe(_variable_last)
+                equivalence=equivalence, equivalence_alpha=equivalence_alpha)))
+        return fold_change_frame(results, groups.index, ref, strata_index,
+                                 "replicate" if replicate is not None else "value")
 
     def log(self, *, base: Any = "e", columns: Any = None, nonpositive: str = "raise") -> Any:
         """Same-shape log transform (base ``"e"``, 2 or 10); other columns pass through unchanged.
@@ -415,6 +397,32 @@ class _PandasBase(FigureMethods):
         from logstats import report
 
         return report.build_report(self._obj, *args, **kwargs)
+
+
+def fold_change_frame(results: list[tuple[Hashable, dict[str, np.ndarray]]], level_index: pd.Index, ref: int,
+                      strata_index: pd.Index | None, unit: str) -> pd.DataFrame:
+    """Shape fold-change arrays ``(n_strata, n_levels)`` per value column into the tidy result: one row
+    per (stratum, level other than the reference[, variable])."""
+    keep = [i for i in range(len(level_index)) if i != ref]
+    kept = level_index.take(keep)
+    n_strata = 1 if strata_index is None else len(strata_index)
+    if strata_index is None:
+        index: pd.Index = kept
+    else:
+        parts = [strata_index.get_level_values(i).repeat(len(keep)) for i in range(strata_index.nlevels)]
+        index = pd.MultiIndex.from_arrays(parts + [np.tile(np.asarray(kept, dtype=object), n_strata)],
+                                          names=list(strata_index.names) + [level_index.name])
+    out = []
+    for _, res in results:
+        fields = {k: np.asarray(v)[:, keep].reshape(-1) for k, v in res.items() if k != "log_ratio"}
+        fields["unit"] = np.full(len(keep) * n_strata, unit)
+        frame = tidy_frame(fields, index)
+        if "equivalent" in frame:
+            frame["equivalent"] = frame["equivalent"].astype(bool)
+        out.append(frame)
+    if len(out) == 1:
+        return out[0]
+    return pd.concat(out, keys=[c for c, _ in results], names=["variable"]).pipe(_variable_last)
 
 
 def _maybe_int(s: pd.Series) -> pd.Series:
