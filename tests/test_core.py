@@ -229,7 +229,7 @@ def test_inputs_not_mutated_and_types():
 
 @settings(max_examples=30, deadline=None)
 @given(st.floats(min_value=1e-200, max_value=1e200),
-       st.lists(st.integers(-1000, 1000), min_size=2, max_size=40),
+       st.lists(st.integers(-900, 900), min_size=2, max_size=40),  # all values stay positive
        st.sampled_from([1e-12, 1e-9, 1e-6, 1e-3]))
 def test_tightly_clustered_logs_match_mpmath(centre, steps, scale):
     # values c·(1 + k·scale): the log deviations are tiny next to |ln c| (mpmath at 50 digits reference)
