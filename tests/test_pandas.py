@@ -193,3 +193,12 @@ def test_combine_series_and_dataset_moments():
     da = xr.DataArray(x.reshape(100, 2), dims=("cell", "ch"))
     mds = logstats.combine_moments([da[:30].logstats.moments("cell"), da[30:].logstats.moments("cell")])
     xr.testing.assert_allclose(mds, da.logstats.moments("cell"), rtol=1e-12)
+
+
+def test_missing_key_warning_once_with_linear_fields():
+    # one warning per call: the keys are factorised once even when linear fields are added
+    df = pd.DataFrame({"g": ["a", None, "a"], "x": [1.0, 2.0, 4.0]})
+    with pytest.warns(LogstatsWarning) as record:
+        out = df.logstats.summary(by="g", linear=True)
+    assert len(record) == 1
+    assert out.loc["a", "median"] == pytest.approx(2.5)  # pandas median of [1, 4]

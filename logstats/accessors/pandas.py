@@ -63,10 +63,11 @@ class _PandasBase(FigureMethods):
         return df, cols, groups
 
     def _moment_reduce(self, kind: str, by: Any, columns: Any, *, skipna: bool, nonpositive: str,
-                       observed: bool, dropna: bool, sort: bool, params: dict[str, Any] | None = None
+                       observed: bool, dropna: bool, sort: bool, params: dict[str, Any] | None = None,
+                       setup: tuple[pd.DataFrame, list[Hashable], Groups | None] | None = None
                        ) -> tuple[list[tuple[Hashable, np.ndarray]], tuple[str, ...], Groups | None]:
         check_nonpositive(nonpositive)
-        df, cols, groups = self._setup(by, columns, observed, dropna, sort)
+        df, cols, groups = setup if setup is not None else self._setup(by, columns, observed, dropna, sort)
         results = []
         names: tuple[str, ...] = ()
         for col in cols:
@@ -213,15 +214,16 @@ class _PandasBase(FigureMethods):
         a    2    2.0  2.665
         b    2    4.0  2.665
         """
+        setup = self._setup(by, columns, observed, dropna, sort)  # keys factorised once for both parts
         results, names, groups = self._moment_reduce(
             "summary", by, columns, skipna=skipna, nonpositive=nonpositive, observed=observed,
-            dropna=dropna, sort=sort, params={"confidence_level": confidence_level, "ddof": ddof})
+            dropna=dropna, sort=sort, params={"confidence_level": confidence_level, "ddof": ddof},
+            setup=setup)
         out = self._stacked_to_tidy(results, names, groups)
         if linear:
             from logstats.stats.estimate import linear_fields
 
-            lin = self._per_column(linear_fields, *self._setup(by, columns, observed, dropna, sort),
-                                   ddof=ddof, skipna=skipna, nonpositive=nonpositive)
+            lin = self._per_column(linear_fields, *setup, ddof=ddof, skipna=skipna, nonpositive=nonpositive)
             if isinstance(out, pd.Series):
                 out = pd.concat([out, lin])
             else:
