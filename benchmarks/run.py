@@ -42,6 +42,8 @@ if __package__ in (None, ""):  # run as ``python benchmarks/run.py``: make the p
 import numpy as np
 import pandas as pd
 
+from benchmarks.memory import reset_peak as _reset_peak
+from benchmarks.memory import status as _status
 from benchmarks.registry import ALONG, GROUPED
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -233,24 +235,6 @@ def bench_fit(cfg: dict[str, Any], repeats: int) -> list[dict[str, Any]]:
 
 
 # --------------------------------------------------------------------------- memory (subprocesses)
-
-def _status(field: str) -> int:
-    with open("/proc/self/status") as f:
-        for line in f:
-            if line.startswith(field + ":"):
-                return int(line.split()[1]) * 1024
-    raise OSError(field)
-
-
-def _reset_peak() -> int | None:
-    """Reset the kernel's peak-RSS mark (Linux) and return the current RSS; None where unsupported."""
-    try:
-        with open("/proc/self/clear_refs", "w") as f:
-            f.write("5")
-        return _status("VmRSS")
-    except OSError:
-        return None
-
 
 def memory_child(rows: int, groups: int, impl: str) -> None:
     """(Subprocess) peak extra memory of one grouped call, printed as JSON."""

@@ -23,6 +23,8 @@ import logstats  # noqa: F401  (registers the accessors)
 
 da = pytest.importorskip("dask.array")
 
+from benchmarks.memory import reset_peak as _reset_peak_rss  # noqa: E402
+from benchmarks.memory import status as _status  # noqa: E402
 from tests._dask_helpers import raise_if_dask_computes  # noqa: E402
 
 MU = np.array([0.5, 2.0, -1.0])
@@ -81,22 +83,6 @@ def test_computable_slice_matches_scipy():
         np.testing.assert_allclose(got[name].values, mem[name].values, rtol=1e-12)
 
 
-def _reset_peak_rss() -> int | None:
-    """Reset the kernel's peak-RSS mark and return the current RSS in bytes (None if unsupported)."""
-    try:
-        with open("/proc/self/clear_refs", "w") as f:
-            f.write("5")
-        return _status("VmRSS")
-    except OSError:
-        return None
-
-
-def _status(field: str) -> int:
-    with open("/proc/self/status") as f:
-        for line in f:
-            if line.startswith(field + ":"):
-                return int(line.split()[1]) * 1024
-    raise OSError(f"{field} not in /proc/self/status")
 
 
 def test_peak_memory_stays_far_below_the_array():
