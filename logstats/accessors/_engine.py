@@ -79,9 +79,7 @@ def _fields_fit(m: LogMoments, *, skipna: bool = True, nonpositive: str = "drop"
 
     cf = closed_form_fit(m)
     n = np.asarray(m.n)
-    mu, sigma = cf["mu"], cf["sigma"]
-    # all values equal: sigma is zero up to the rounding of the mean (the MLE does not exist)
-    degenerate = (n > 0) & (sigma <= 16 * np.finfo(np.float64).eps * np.maximum(1.0, np.abs(mu)))
+    mu, sigma, degenerate = cf["mu"], cf["sigma"], cf["degenerate"]
     status = np.where(n == 0, 2, np.where(degenerate, 1, 0))
     poisoned = np.isnan(mu) & (n > 0)
     if not skipna:

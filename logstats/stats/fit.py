@@ -318,9 +318,10 @@ def fit_lognormal(
     if nonpositive == "nan":
         poisoned |= n_nonpos > 0
 
+    cf = closed_form_fit(dm)
     uncens = (m == 0) & (k > 0) & ~poisoned
-    degenerate = uncens & ties
-    closed = uncens & ~ties
+    degenerate = uncens & cf["degenerate"]
+    closed = uncens & ~cf["degenerate"]
     all_cens = (m > 0) & (k == 0) & ~poisoned
     too_few = (m > 0) & (k > 0) & ties & ~(cmin < ymin) & ~poisoned
     newton = (m > 0) & (k > 0) & ~too_few & ~poisoned
@@ -334,7 +335,6 @@ def fit_lognormal(
     n_iter = np.zeros(G, dtype=np.int64)
 
     # closed form (no censoring)
-    cf = closed_form_fit(dm)
     mu[uncens] = ybar[uncens]
     sigma[closed] = cf["sigma"][closed]
     sigma[degenerate] = 0.0
@@ -381,16 +381,19 @@ def closed_form_fit(m: LogMoments) -> dict[str, np.ndarray]:
     ``mu = ȳ``, ``sigma = sqrt(m2 / n)`` (ddof=0), ``loglik = −n/2·(ln 2π + 1) − n ln sigma − n ȳ`` on the
     original scale (the last term is the Jacobian −Σ ln x), and the observed-information standard
     errors ``se_mu = sigma/√n``, ``se_sigma = sigma/√(2n)``. Because it needs only moments, chunked
-    (dask) data can be fitted without loading: see the xarray ``fit``.
+    (dask) data can be fitted without loading: see the xarray ``fit``. ``degenerate`` marks groups whose
+    logs are all equal (sigma zero up to the rounding of the mean), where the MLE does not exist.
     """
     kf = np.asarray(m.n, dtype=np.float64)
     ybar = np.asarray(m.mean_log, dtype=np.float64)
     with np.errstate(divide="ignore", invalid="ignore"):
         s_ml = np.sqrt(np.asarray(m.m2_log, dtype=np.float64) / kf)
         loglik = -0.5 * kf * (_LOG_2PI + 1.0) - kf * np.log(s_ml) - kf * ybar
+        degenerate = (kf > 0) & (s_ml <= 16 * np.finfo(np.float64).eps * np.maximum(1.0, np.abs(ybar)))
         return {
             "mu": ybar,
             "sigma": s_ml,
+            "degenerate": degenerate,
             "loglik": loglik,
             "se_mu": s_ml / np.sqrt(kf),
             "se_sigma": s_ml / np.sqrt(2.0 * kf),
