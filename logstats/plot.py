@@ -709,6 +709,10 @@ def qq(
         axes = list(np.ravel(ax))
         if raw and len(axes) < 2:
             raise ValueError("raw=True needs a pair of Axes in ax=")
+        if raw and axes[0].get_shared_y_axes().joined(axes[0], axes[1]):
+            raise ValueError("plot_qq: the two Axes in ax= share their y axis, so the raw-value panel "
+                             "would inherit the log scale of the log panel; pass Axes created without "
+                             "sharey (or raw=False)")
     else:
         if raw:
             raise ValueError("raw=True needs a pair of Axes in ax= (or pass raw=False)")
@@ -739,6 +743,7 @@ def qq(
         axes[0].legend(fontsize="small", frameon=False)
     _finish_axes(axes[0])
     if raw:
+        axes[1].set_yscale("linear")
         axes[1].set_xlabel("standard normal quantile")
         axes[1].set_ylabel(data.label)
         axes[1].set_title("raw values: straight if normal", fontsize="medium")

@@ -124,14 +124,26 @@ def _table(df: pd.DataFrame | pd.Series, *, columns: Sequence[str] | None = None
     return "\n".join(out)
 
 
+#: Figures drawn for the last report, kept only when a caller asks (``FIGURE_LOG`` set to a list):
+#: the tests read each panel's scale from the Axes objects themselves.
+FIGURE_LOG: list[Any] | None = None
+
+
 def _figure_png(draw: Any, *, size: tuple[float, float], nrows: int = 1, ncols: int = 1,
-                alt: str, caption: str) -> str:
-    """Draw on a fresh, pyplot-free Figure and embed it as a base64 PNG ``<figure>``."""
+                share: bool = False, alt: str, caption: str) -> str:
+    """Draw on a fresh, pyplot-free Figure and embed it as a base64 PNG ``<figure>``.
+
+    ``share=True`` links the axes of every panel; only for grids whose panels are all on one scale
+    (the per-group histograms). Panels on different scales (logs beside raw values) never share:
+    a shared axis would put both on the scale of whichever panel set it last.
+    """
     from matplotlib.figure import Figure
 
     fig = Figure(figsize=size, layout="constrained")
-    axes = fig.subplots(nrows, ncols, squeeze=False, sharex=nrows * ncols > 1, sharey=nrows * ncols > 1)
+    axes = fig.subplots(nrows, ncols, squeeze=False, sharex=share, sharey=share)
     draw(axes)
+    if FIGURE_LOG is not None:
+        FIGURE_LOG.append((caption, fig))
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=96)
     data = base64.b64encode(buf.getvalue()).decode("ascii")
@@ -421,7 +433,7 @@ def _figures(df: pd.DataFrame, values: list[Hashable], by: Hashable | None, repl
             lambda axes, v=v: plot.hist(df, v, by=by, ax=axes if ngroups > 1 else axes[0, 0],
                                         normal=True, nonpositive=nonpositive, units=units,
                                         detection_limit=detection_limit),
-            size=(3.6 * ncols, 2.8 * nrows + 0.5), nrows=nrows, ncols=ncols,
+            size=(3.6 * ncols, 2.8 * nrows + 0.5), nrows=nrows, ncols=ncols, share=True,
             alt=f"histogram of {v} on log-spaced bins",
             caption="Histogram on log-spaced bins with the fitted log-normal density (solid) and the "
                     "fitted normal density (dashed), per group; a log-normal sample follows the solid "
@@ -445,7 +457,7 @@ def _figures(df: pd.DataFrame, values: list[Hashable], by: Hashable | None, repl
             size=(9.6, 4.0), ncols=2,
             alt=f"normal probability plots of {v}: logs and raw values",
             caption="Normal probability plots: ordered logs (left, log axis) and ordered raw values "
-                    "(right) against normal quantiles. Points on the line mean the scale is the right "
+                    "(right, linear axis) against normal quantiles. Points on the line mean the scale is the right "
                     "one."))
     return out
 

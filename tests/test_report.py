@@ -194,3 +194,54 @@ def test_report_errors(plates):
 def test_accessor_delegates(plates):
     text = plates.logstats.report(value="area", by="medium", nonpositive="drop", figures=False)
     assert _parse(text).sections[:3] == ["overview", "scale-check", "summary"]
+
+
+def test_every_report_panel_on_the_scale_its_caption_names(plates, monkeypatch):
+    """Regression: the raw-value probability plot shared the log axis of the log panel beside it, so
+    skewed data looked straight. Each panel's scale is read from the Axes the report drew on (the
+    captions say which panels are on a log axis); no two panels on different scales are linked."""
+    from logstats import report as report_module
+
+    drawn: list = []
+    monkeypatch.setattr(report_module, "FIGURE_LOG", drawn)
+    build_report(plates, value="area", by="medium", replicate="plate", reference="base",
+                 nonpositive="drop")
+    assert drawn
+    seen_qq = False
+    for caption, fig in drawn:
+        axes = [a for a in fig.axes if a.get_visible()]
+        for a in axes:
+            for b in axes:
+                if a is b:
+                    continue
+                # panels that share an axis must be on the same scale on that axis
+                if a.get_shared_y_axes().joined(a, b):
+                    assert a.get_yscale() == b.get_yscale(), caption
+                if a.get_shared_x_axes().joined(a, b):
+                    assert a.get_xscale() == b.get_xscale(), caption
+        if caption.startswith("Normal probability plots"):
+            seen_qq = True
+            logs, raw = axes[:2]
+            assert "left, log axis" in caption and "right, linear axis" in caption
+            assert logs.get_yscale() == "log" and raw.get_yscale() == "linear"
+            assert not logs.get_shared_y_axes().joined(logs, raw)
+            # the raw panel really shows raw values: its data limits are the sample's own range
+            lo, hi = raw.dataLim.intervaly
+            x = plates["area"].to_numpy(dtype=float)  # zeros stay in the raw panel
+            assert lo <= np.nanmin(x) * 1.0001 and hi >= np.nanmax(x) * 0.9999
+        elif caption.startswith("Histogram"):
+            assert all(a.get_xscale() == "log" for a in axes)
+        else:
+            assert all(a.get_yscale() == "log" for a in axes)
+    assert seen_qq
+
+
+def test_qq_refuses_axes_that_share_the_value_axis(plates):
+    import matplotlib.pyplot as plt
+
+    from logstats import plot
+
+    fig, axs = plt.subplots(1, 2, sharey=True)
+    with pytest.raises(ValueError, match="share their y axis"):
+        plot.qq(plates, "area", ax=axs, nonpositive="drop")
+    plt.close(fig)
