@@ -457,8 +457,8 @@ def _figures(df: pd.DataFrame, values: list[Hashable], by: Hashable | None, repl
             size=(9.6, 4.0), ncols=2,
             alt=f"normal probability plots of {v}: logs and raw values",
             caption="Normal probability plots: ordered logs (left, log axis) and ordered raw values "
-                    "(right, linear axis) against normal quantiles. Points on the line mean the scale is the right "
-                    "one."))
+                    "(right, linear axis) against normal quantiles. Points on the line mean the scale "
+                    "is the right one."))
     return out
 
 

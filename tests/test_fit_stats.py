@@ -18,13 +18,9 @@ from hypothesis import strategies as st
 from scipy import stats
 
 from logstats.core.moments import LogMoments, moments_by_codes
-from logstats.stats.fit import (
-    FIT_STATUSES,
-    LOGNORMAL_MEAN_METHODS,
-    fit_lognormal,
-    lognormal_mean,
-    scale_check,
-)
+from logstats.stats.censored import FIT_STATUSES, fit_lognormal
+from logstats.stats.lnmean import LOGNORMAL_MEAN_METHODS, lognormal_mean
+from logstats.stats.scale import scale_check
 
 FIT_COLUMNS = ["mu", "sigma", "n", "n_censored", "loglik", "converged", "se_mu", "se_sigma", "n_iter",
                "n_missing", "n_nonpositive", "status"]

@@ -69,13 +69,13 @@ def _fields_gcv(m: LogMoments, *, ddof: float = 1, **_: Any) -> dict[str, np.nda
 
 
 #: ``status`` of a closed-form fit, by the code the finalizer stores (strings cannot travel in the
-#: float stack); the names are those of :data:`logstats.stats.fit.FIT_STATUSES`.
+#: float stack); the names are those of :data:`logstats.stats.censored.FIT_STATUSES`.
 CLOSED_FIT_STATUS = ("closed_form", "degenerate", "empty", "missing", "nonpositive")
 
 
 def _fields_fit(m: LogMoments, *, skipna: bool = True, nonpositive: str = "drop",
                 **_: Any) -> dict[str, np.ndarray]:
-    from logstats.stats.fit import closed_form_fit
+    from logstats.stats.censored import closed_form_fit
 
     cf = closed_form_fit(m)
     n = np.asarray(m.n)
@@ -103,7 +103,7 @@ def _fields_fit(m: LogMoments, *, skipna: bool = True, nonpositive: str = "drop"
 
 
 def _fields_lognormal_mean(m: LogMoments, **kw: Any) -> dict[str, np.ndarray]:
-    from logstats.stats.fit import lognormal_mean
+    from logstats.stats.lnmean import lognormal_mean
 
     keep = {k: kw[k] for k in ("method", "confidence_level", "random_state", "n_draws") if k in kw}
     res = lognormal_mean(m, **keep)
@@ -205,17 +205,17 @@ def grouped_method(kind: str, values: np.ndarray, codes: np.ndarray, ngroups: in
                    labels: Sequence[Any] | None = None, nonpositive: str = "raise", skipna: bool = True,
                    **kw: Any) -> dict[str, np.ndarray]:
     """Run ``fit``, ``scale_check`` or ``lognormal_mean`` for all groups at once."""
-    from logstats.stats import fit
+    from logstats.stats import censored, lnmean, scale
 
     check_nonpositive(nonpositive)
     policy = "drop" if nonpositive == "raise" else nonpositive
     if kind == "fit":
         # with a limit, values at or below it (zeros and negatives included) are censored, not refused
         limit = kw.pop("detection_limit", None)
-        res = fit.fit_lognormal(values, codes, ngroups, detection_limit=limit, nonpositive=policy,
+        res = censored.fit_lognormal(values, codes, ngroups, detection_limit=limit, nonpositive=policy,
                                 skipna=skipna, **kw)
     elif kind == "scale_check":
-        res = fit.scale_check(values, codes, ngroups, nonpositive=policy, skipna=skipna)
+        res = scale.scale_check(values, codes, ngroups, nonpositive=policy, skipna=skipna)
     elif kind == "lognormal_mean":
         m = moments_by_codes(values, codes, ngroups, where=where)
         raise_for_counts(m.n_nonpositive, nonpositive=nonpositive, where=where, labels=labels)
@@ -223,7 +223,7 @@ def grouped_method(kind: str, values: np.ndarray, codes: np.ndarray, ngroups: in
         method = kw.get("method", "cox")
         if method == "bootstrap":
             kw = {**kw, "values": values, "codes": codes}
-        res = fit.lognormal_mean(m, **kw)
+        res = lnmean.lognormal_mean(m, **kw)
         res = {**res, "n": m.n, "n_missing": m.n_missing, "n_nonpositive": m.n_nonpositive}
     else:
         raise ValueError(f"unknown method {kind!r}")

@@ -243,7 +243,7 @@ class _PandasBase(FigureMethods):
         ``detection_limit`` is a number or the name of a column (or an aligned Series) holding each
         row's limit; a value **at or below** its limit is censored, zeros and negatives included (the
         ``nonpositive`` policy then does not apply to them). Censored groups are fitted all at once by
-        Newton's method with step halving (see :func:`logstats.stats.fit.fit_lognormal`); a wholly
+        Newton's method with step halving (see :func:`logstats.stats.censored.fit_lognormal`); a wholly
         censored group gets NaN with its status, never a number.
         """
         limit_col = detection_limit if isinstance(detection_limit, str) else None
