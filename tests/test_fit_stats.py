@@ -26,7 +26,8 @@ FIT_COLUMNS = ["mu", "sigma", "n", "n_censored", "loglik", "converged", "se_mu",
                "n_missing", "n_nonpositive", "status"]
 SCALE_COLUMNS = ["aic_normal", "aic_lognormal", "preferred", "normality_p_linear", "normality_p_log", "mean",
                  "gmean", "mean_ratio", "expected_ratio", "delta_aic", "normality_test", "skew_linear",
-                 "skew_log", "n", "n_missing", "n_nonpositive"]
+                 "skew_log", "n", "n_missing", "n_nonpositive", "boxcox_lambda", "boxcox_ci_low",
+                 "boxcox_ci_high", "n_censored"]
 
 
 # ----------------------------------------------------------------------------------------------------
@@ -401,7 +402,9 @@ def test_scale_check_columns_and_aic_against_scipy():
         np.testing.assert_allclose(out["aic_normal"][g], aic_n, rtol=1e-10)
         np.testing.assert_allclose(out["aic_lognormal"][g], aic_l, rtol=1e-10)
         np.testing.assert_allclose(out["delta_aic"][g], aic_n - aic_l, rtol=1e-8, atol=1e-8)
-        assert out["preferred"][g] == ("log" if aic_n > aic_l else "linear")
+        # verdict with DESIGN.md's margin=2 rule (|delta| < 2 -> "undecided")
+        d = aic_n - aic_l
+        assert out["preferred"][g] == ("log" if d >= 2 else "linear" if d <= -2 else "undecided")
         # references: numpy mean, scipy.stats.gmean, scipy.stats.skew (default bias=True)
         np.testing.assert_allclose(out["mean"][g], np.mean(xg), rtol=1e-12)
         np.testing.assert_allclose(out["gmean"][g], stats.gmean(xg), rtol=1e-12)
@@ -586,9 +589,10 @@ def test_bootstrap_needs_matching_raw_values():
 
 
 def test_unknown_method_lists_the_methods():
-    with pytest.raises(ValueError, match="'cox', 'modified_cox', 'gci', 'bootstrap'"):
-        lognormal_mean(moments_from(5, 0.0, 1.0), method="land")
-    assert LOGNORMAL_MEAN_METHODS == ("cox", "modified_cox", "gci", "bootstrap")
+    # "land" (Land's exact interval) joined the methods with the upper-tails work (issue 16)
+    with pytest.raises(ValueError, match="'cox', 'modified_cox', 'gci', 'bootstrap', 'land'"):
+        lognormal_mean(moments_from(5, 0.0, 1.0), method="nope")
+    assert LOGNORMAL_MEAN_METHODS == ("cox", "modified_cox", "gci", "bootstrap", "land")
     with pytest.raises(ValueError, match="confidence_level"):
         lognormal_mean(moments_from(5, 0.0, 1.0), confidence_level=95)
 

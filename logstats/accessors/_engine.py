@@ -1,23 +1,35 @@
-"""The one reduction path every container goes through (adapter layer: no formulas here).
+"""The one path every container goes through: a declared method, one policy, one kernel (no formulas here).
 
-Data arrive as a numpy or dask array whose reduced axes are last. The engine builds log-moments per
-block (core), merges them (core), then *finalizes* them into the requested fields (statistics layer).
-The same finalizer runs on numpy results directly and on dask results block by block, so a dask-backed
-input gives lazy results equal to the in-memory ones.
+Adapters hand the engine an array (numpy or dask) whose reduced axes are last, optional group codes
+along the one reduced axis, a :class:`~logstats.methods.Policy` and the method's keywords. The engine
+
+* builds log-moments (core) and finalizes them with the method's moment kernel, or, for methods that
+  need the values (order statistics, censoring, resampling), counts and removes what the policy leaves
+  out and calls the values kernel once for every group and every kept position together;
+* applies the policy around every kernel: ``nonpositive="raise"`` refuses (naming the groups and the
+  count), ``"nan"`` and ``skipna=False`` make the affected groups undefined, and every value left out
+  is counted in the result (``n_missing``, ``n_nonpositive``);
+* returns ``dict[str, array]`` in the declared field order and dtypes: numpy arrays for numpy input
+  (no round trip through floats), lazy dask arrays for dask input where the method merges moments.
 """
 
 from __future__ import annotations
 
+import functools
+import inspect
+import warnings
 from collections.abc import Callable, Sequence
 from typing import Any
 
 import numpy as np
 
 from logstats.core.moments import FIELDS, LogMoments, moments_along, moments_by_codes
-from logstats.core.transform import check_nonpositive, nonpositive_message
-from logstats.stats import estimate
+from logstats.core.transform import LogstatsWarning, as_float_array, nonpositive_message
+from logstats.methods import METHODS, Field, Method, Policy, kernel, resolve
 
-__all__ = ["FINALIZERS", "finalize", "is_dask", "stacked_moments"]
+__all__ = ["compare", "compute", "is_dask", "raise_for_counts"]
+
+_COUNT_FIELDS = ("n", "n_missing", "n_nonpositive", "n_censored")
 
 
 def is_dask(data: Any) -> bool:
@@ -25,269 +37,393 @@ def is_dask(data: Any) -> bool:
     return mod.startswith("dask.") and hasattr(data, "chunks")
 
 
-def stacked_moments(data: Any, *, nred: int, codes: np.ndarray | None = None, ngroups: int | None = None,
-                    where: str = "the input") -> Any:
-    """Moments of ``data`` over its last ``nred`` axes, stacked with a trailing field axis (``FIELDS``).
+# --------------------------------------------------------------------------------------------- policy
 
-    Without ``codes`` the result has shape ``data.shape[:-nred] + (6,)``; with ``codes`` (one reduced
-    axis) ``data.shape[:-1] + (ngroups, 6)``. Dask arrays stay lazy (see :mod:`logstats.accessors.dask`).
-    """
-    if is_dask(data):
-        from logstats.accessors.dask import dask_stacked_moments
-
-        return dask_stacked_moments(data, nred=nred, codes=codes, ngroups=ngroups, where=where)
-    if codes is None:
-        axes = tuple(range(np.ndim(data) - nred, np.ndim(data)))
-        return moments_along(data, axis=axes, where=where).stack()
-    if nred != 1:
-        raise ValueError("grouped reductions take exactly one reduced axis")
-    return moments_by_codes(data, codes, int(ngroups or 0), where=where).stack()
-
-
-# --------------------------------------------------------------------------- finalizers
-# Each maps policy-checked LogMoments to an ordered dict of float arrays.
-
-def _fields_moments(m: LogMoments, **_: Any) -> dict[str, np.ndarray]:
-    return m.to_dict()
-
-
-def _fields_summary(m: LogMoments, *, confidence_level: float = 0.95, ddof: float = 1,
-                    **_: Any) -> dict[str, np.ndarray]:
-    return estimate.summary_fields(m, confidence_level=confidence_level, ddof=ddof)
-
-
-def _fields_gmean(m: LogMoments, **_: Any) -> dict[str, np.ndarray]:
-    return {"gmean": estimate.gmean(m)}
-
-
-def _fields_gsd(m: LogMoments, *, ddof: float = 1, **_: Any) -> dict[str, np.ndarray]:
-    return {"gsd": estimate.gsd(m, ddof)}
-
-
-def _fields_gcv(m: LogMoments, *, ddof: float = 1, **_: Any) -> dict[str, np.ndarray]:
-    return {"gcv": estimate.gcv(m, ddof)}
-
-
-#: ``status`` of a closed-form fit, by the code the finalizer stores (strings cannot travel in the
-#: float stack); the names are those of :data:`logstats.stats.censored.FIT_STATUSES`.
-CLOSED_FIT_STATUS = ("closed_form", "degenerate", "empty", "missing", "nonpositive")
-
-
-def _fields_fit(m: LogMoments, *, skipna: bool = True, nonpositive: str = "drop",
-                **_: Any) -> dict[str, np.ndarray]:
-    from logstats.stats.censored import closed_form_fit
-
-    cf = closed_form_fit(m)
-    n = np.asarray(m.n)
-    mu, sigma, degenerate = cf["mu"], cf["sigma"], cf["degenerate"]
-    status = np.where(n == 0, 2, np.where(degenerate, 1, 0))
-    poisoned = np.isnan(mu) & (n > 0)
-    if not skipna:
-        status = np.where(poisoned & (np.asarray(m.n_missing) > 0), 3, status)
-    status = np.where(poisoned & (status != 3), 4, status)
-    ok = status == 0
-    return {
-        "mu": mu,
-        "sigma": np.where(degenerate, 0.0, sigma),
-        "n": n,
-        "n_censored": np.asarray(m.n_censored),
-        "loglik": np.where(degenerate, np.inf, cf["loglik"]),
-        "converged": ok.astype(np.float64),
-        "se_mu": np.where(ok, cf["se_mu"], np.nan),
-        "se_sigma": np.where(ok, cf["se_sigma"], np.nan),
-        "n_iter": np.zeros(n.shape),
-        "n_missing": np.asarray(m.n_missing),
-        "n_nonpositive": np.asarray(m.n_nonpositive),
-        "status": status.astype(np.float64),
-    }
-
-
-def _fields_lognormal_mean(m: LogMoments, **kw: Any) -> dict[str, np.ndarray]:
-    from logstats.stats.lnmean import lognormal_mean
-
-    keep = {k: kw[k] for k in ("method", "confidence_level", "random_state", "n_draws") if k in kw}
-    res = lognormal_mean(m, **keep)
-    return {"estimate": res["estimate"], "ci_low": res["ci_low"], "ci_high": res["ci_high"],
-            "n": np.asarray(m.n), "n_missing": np.asarray(m.n_missing),
-            "n_nonpositive": np.asarray(m.n_nonpositive)}
-
-
-FINALIZERS: dict[str, tuple[Callable[..., dict[str, np.ndarray]], tuple[str, ...]]] = {
-    "moments": (_fields_moments, FIELDS),
-    "summary": (
-        _fields_summary,
-        ("n", "n_missing", "n_nonpositive", "gmean", "gsd", "gcv", "ci_low", "ci_high", "ci_factor"),
-    ),
-    "gmean": (_fields_gmean, ("gmean",)),
-    "gsd": (_fields_gsd, ("gsd",)),
-    "gcv": (_fields_gcv, ("gcv",)),
-    "fit": (_fields_fit, ("mu", "sigma", "n", "n_censored", "loglik", "converged", "se_mu", "se_sigma",
-                          "n_iter", "n_missing", "n_nonpositive", "status")),
-    "lognormal_mean": (_fields_lognormal_mean, ("estimate", "ci_low", "ci_high", "n", "n_missing",
-                                                "n_nonpositive")),
-}
-#: Finalizers that must see all groups at once (Monte Carlo draws are laid out over every group, so a
-#: dask result equals the in-memory one only if the small merged moments are finalized in one block).
-WHOLE_BLOCK = frozenset({"lognormal_mean"})
-
-INT_FIELDS = frozenset({"n", "n_missing", "n_nonpositive", "n_censored", "n_iter"})
-
-
-def register_finalizer(kind: str, fn: Callable[..., dict[str, np.ndarray]], names: Sequence[str]) -> None:
-    FINALIZERS[kind] = (fn, tuple(names))
-
-
-def check_policy(m: LogMoments, *, nonpositive: str, where: str, labels: Sequence[Any] | None) -> None:
-    """Raise for ``nonpositive="raise"``, naming the groups (last axis) and the count."""
-    if nonpositive != "raise":
-        return
-    bad = np.asarray(m.n_nonpositive)
-    total = int(bad.sum())
-    if not total:
-        return
-    groups = None
-    if labels is not None and bad.ndim >= 1:
-        per_group = bad.reshape(-1, bad.shape[-1]).sum(axis=0)
-        groups = [labels[int(i)] for i in np.flatnonzero(per_group)]
-    raise ValueError(nonpositive_message(where, total, groups))
-
-
-def finalize_numpy(stacked: np.ndarray, *, kind: str, skipna: bool, nonpositive: str, where: str,
-                   labels: Sequence[Any] | None, params: dict[str, Any]) -> np.ndarray:
-    fn, names = FINALIZERS[kind]
-    m = LogMoments.unstack(np.asarray(stacked))
-    check_policy(m, nonpositive=nonpositive, where=where, labels=labels)
-    if kind != "moments":
-        m = m.with_policy(skipna=skipna, nonpositive=nonpositive)
-    out = fn(m, **params)
-    return np.stack([np.asarray(out[k], dtype=np.float64) for k in names], axis=-1)
-
-
-def finalize(stacked: Any, *, kind: str, skipna: bool = True, nonpositive: str = "raise",
-             where: str = "the input", labels: Sequence[Any] | None = None,
-             params: dict[str, Any] | None = None) -> tuple[Any, tuple[str, ...]]:
-    """Turn stacked moments into stacked result fields; lazy for dask input.
-
-    Returns ``(array with trailing field axis, field names)``.
-    """
-    check_nonpositive(nonpositive)
-    if kind not in FINALIZERS:
-        raise ValueError(f"unknown reduction {kind!r}")
-    names = FINALIZERS[kind][1]
-    kw: dict[str, Any] = dict(kind=kind, skipna=skipna, nonpositive=nonpositive, where=where,
-                              labels=labels, params=params or {})
-    if is_dask(stacked):
-        if kind in WHOLE_BLOCK:
-            stacked = stacked.rechunk(-1)  # the merged moments: small, one value set per group
-        chunks = stacked.chunks[:-1] + ((len(names),),)
-        return stacked.map_blocks(finalize_numpy, chunks=chunks, dtype=np.float64, **kw), names
-    return finalize_numpy(stacked, **kw), names
-
-
-# --------------------------------------------------------------------------- raw-value methods
-# Fits, the scale check and the log-normal mean need more than moments (censoring, order
-# statistics, resampling). They run on 1-D values with group codes; this applies the shared policy.
-
-def raise_for_counts(counts: np.ndarray, *, nonpositive: str, where: str,
-                     labels: Sequence[Any] | None) -> None:
+def raise_for_counts(counts: Any, *, policy: Policy, where: str, labels: Sequence[Any] | None) -> None:
     """The ``nonpositive="raise"`` refusal from per-group counts (last axis = groups)."""
-    if nonpositive != "raise":
+    if policy.nonpositive != "raise":
         return
     counts = np.asarray(counts)
     total = int(counts.sum())
     if total:
-        per_group = counts.reshape(-1, counts.shape[-1]).sum(axis=0) if counts.ndim else counts
+        per_group = counts.reshape(-1, counts.shape[-1]).sum(axis=0) if counts.ndim else counts.reshape(1)
         groups = [labels[int(i)] for i in np.flatnonzero(per_group)] if labels is not None else None
         raise ValueError(nonpositive_message(where, total, groups))
 
 
-def grouped_method(kind: str, values: np.ndarray, codes: np.ndarray, ngroups: int, *, where: str,
-                   labels: Sequence[Any] | None = None, nonpositive: str = "raise", skipna: bool = True,
-                   **kw: Any) -> dict[str, np.ndarray]:
-    """Run ``fit``, ``scale_check`` or ``lognormal_mean`` for all groups at once."""
-    from logstats.stats import censored, lnmean, scale
+def _undefined(policy: Policy, n_missing: Any, n_nonpositive: Any) -> tuple[np.ndarray, np.ndarray]:
+    """Groups the policy makes undefined: (because of missing values, because of non-positive ones)."""
+    by_missing = (np.asarray(n_missing) > 0) if not policy.skipna else np.zeros(np.shape(n_missing), bool)
+    by_nonpos = (np.asarray(n_nonpositive) > 0) if policy.nonpositive == "nan" else \
+        np.zeros(np.shape(n_nonpositive), bool)
+    return by_missing, by_nonpos & ~by_missing
 
-    check_nonpositive(nonpositive)
-    policy = "drop" if nonpositive == "raise" else nonpositive
-    if kind == "fit":
-        # with a limit, values at or below it (zeros and negatives included) are censored, not refused
-        limit = kw.pop("detection_limit", None)
-        res = censored.fit_lognormal(values, codes, ngroups, detection_limit=limit, nonpositive=policy,
-                                skipna=skipna, **kw)
-    elif kind == "scale_check":
-        res = scale.scale_check(values, codes, ngroups, nonpositive=policy, skipna=skipna)
-    elif kind == "lognormal_mean":
-        m = moments_by_codes(values, codes, ngroups, where=where)
-        raise_for_counts(m.n_nonpositive, nonpositive=nonpositive, where=where, labels=labels)
-        m = m.with_policy(skipna=skipna, nonpositive=policy)
-        method = kw.get("method", "cox")
-        if method == "bootstrap":
-            kw = {**kw, "values": values, "codes": codes}
-        res = lnmean.lognormal_mean(m, **kw)
-        res = {**res, "n": m.n, "n_missing": m.n_missing, "n_nonpositive": m.n_nonpositive}
-    else:
-        raise ValueError(f"unknown method {kind!r}")
-    raise_for_counts(res["n_nonpositive"], nonpositive=nonpositive, where=where, labels=labels)
+
+def _poison(method: Method, out: dict[str, Any], by_missing: np.ndarray, by_nonpos: np.ndarray) -> None:
+    """Make every non-count field of the undefined groups undefined (in place)."""
+    bad = by_missing | by_nonpos
+    if not bad.any():
+        return
+    for name, v in out.items():
+        f = method.field(name)
+        v = np.asarray(v)
+        if f.dtype == "float" or (f.dtype == "int" and name not in _COUNT_FIELDS and v.dtype.kind == "f"):
+            out[name] = np.where(bad, np.nan, v)
+        elif f.dtype == "bool":
+            out[name] = np.where(bad, False, v)
+        elif f.dtype == "str":
+            if f.when_poisoned == "reason":
+                reason = np.where(by_missing, "missing", np.where(by_nonpos, "nonpositive", v))
+                out[name] = reason.astype(object)
+            elif f.when_poisoned == "none":
+                blank = v.astype(object)
+                blank[bad] = None
+                out[name] = blank
+
+
+def _typed(method: Method, out: dict[str, Any], shape: tuple[int, ...]) -> dict[str, np.ndarray]:
+    """Declared fields in declared order with declared dtypes (extra kernel fields kept after them,
+    with their own dtype; a count a kernel returns as float becomes an integer)."""
+    res: dict[str, np.ndarray] = {}
+    declared = [f.name for f in method.fields + method.censored_fields]
+    names = [n for n in declared if n in out] + [k for k in out if k not in declared]
+    for name in names:
+        f = method.field(name)
+        v = np.asarray(out[name])
+        if v.ndim == 0:
+            v = np.broadcast_to(v, shape)
+        if f.dtype == "int" and v.dtype.kind != "i":
+            v = v.astype(np.int64) if (v.dtype.kind in "ub" or np.isfinite(v).all()) else v
+        elif name in declared and f.dtype == "bool" and v.dtype.kind != "b":
+            v = v.astype(bool)
+        elif name in declared and f.dtype == "float" and v.dtype.kind != "f":
+            v = v.astype(np.float64)
+        res[name] = v
     return res
 
 
-def raw_reduce(kind: str, data: np.ndarray, *, codes: np.ndarray | None = None, ngroups: int | None = None,
-               where: str = "the input", labels: Sequence[Any] | None = None, nonpositive: str = "raise",
-               skipna: bool = True, detection_limit: Any = None, **kw: Any) -> dict[str, np.ndarray]:
-    """A raw-value method over the **last** axis of ``data``, every leading position in one pass.
+# --------------------------------------------------------------------------------------------- kernels
 
-    Position ``r`` of the leading axes and group ``g`` become flat group ``r * G + g``, so the
-    statistics layer sees one 1-D problem however many channels or time points there are. Results
-    have shape ``data.shape[:-1]`` (plus ``(G,)`` with ``codes``). ``detection_limit``: a number or
-    an array of ``data``'s shape.
+@functools.cache
+def _accepted(path: str) -> frozenset[str] | None:
+    """Keywords a kernel accepts (None: it takes ``**kwargs``)."""
+    params = inspect.signature(kernel(path)).parameters.values()
+    if any(p.kind is p.VAR_KEYWORD for p in params):
+        return None
+    return frozenset(p.name for p in params)
+
+
+def _call(path: str, *args: Any, params: dict[str, Any], rename: dict[str, str] | None = None) -> Any:
+    kw = {(rename or {}).get(k, k): v for k, v in params.items()}
+    ok = _accepted(path)
+    if ok is not None:
+        kw = {k: v for k, v in kw.items() if k in ok}
+    return kernel(path)(*args, **kw)
+
+
+# --------------------------------------------------------------------------------------------- moments
+
+def finalize_moments(method: Method, m: LogMoments, *, policy: Policy, params: dict[str, Any], where: str,
+                     labels: Sequence[Any] | None) -> dict[str, np.ndarray]:
+    """Policy-checked moments through the method's moment kernel; declared fields and dtypes."""
+    raise_for_counts(m.n_nonpositive, policy=policy, where=where, labels=labels)
+    by_missing, by_nonpos = _undefined(policy, m.n_missing, m.n_nonpositive)
+    use = m if method.name == "moments" else m.with_policy(skipna=policy.skipna,
+                                                          nonpositive=policy.kernel_nonpositive)
+    out = dict(_call(method.kernel, use, params=params))
+    for name in _COUNT_FIELDS:
+        if name not in out and name in method.field_names:
+            out[name] = getattr(m, name)
+    if method.name != "moments":
+        _poison(method, out, by_missing, by_nonpos)
+    return _typed(method, out, m.shape)
+
+
+def _moments(data: np.ndarray, nred: int, codes: np.ndarray | None, ngroups: int | None,
+             where: str) -> LogMoments:
+    if codes is None:
+        axes = tuple(range(np.ndim(data) - nred, np.ndim(data)))
+        return moments_along(data, axis=axes, where=where)
+    if nred != 1:
+        raise ValueError("grouped reductions take exactly one reduced axis")
+    return moments_by_codes(data, codes, int(ngroups or 0), where=where)
+
+
+def _encode(method: Method, out: dict[str, np.ndarray], names: Sequence[str]) -> np.ndarray:
+    """Fields as one float stack (the dask block layout): str fields as codes of their choices."""
+    cols = []
+    for name in names:
+        f = method.field(name)
+        v = out[name]
+        if f.dtype == "str":
+            lookup = {c: float(i) for i, c in enumerate(f.choices)}
+            v = np.vectorize(lambda s, lk=lookup: lk.get(s, np.nan), otypes=[np.float64])(v) if v.size \
+                else np.zeros(v.shape)
+        cols.append(np.asarray(v, dtype=np.float64))
+    return np.stack(cols, axis=-1)
+
+
+def _finalize_block(block: np.ndarray, *, method: str, policy: Policy, params: dict[str, Any], where: str,
+                    labels: Sequence[Any] | None, names: tuple[str, ...]) -> np.ndarray:
+    md = METHODS[method]
+    out = finalize_moments(md, LogMoments.unstack(np.asarray(block)), policy=policy, params=params,
+                           where=where, labels=labels)
+    return _encode(md, out, names)
+
+
+def _decode(method: Method, name: str, column: Any) -> Any:
+    f = method.field(name)
+    if f.dtype == "int":
+        return column.astype(np.int64)
+    if f.dtype == "bool":
+        return column.astype(bool)
+    if f.dtype == "str":
+        choices = np.asarray(list(f.choices) + [None], dtype=object)
+
+        def names_of(codes: np.ndarray) -> np.ndarray:
+            c = np.where(np.isfinite(codes), codes, len(choices) - 1).astype(np.intp)
+            return choices[c]
+
+        return column.map_blocks(names_of, dtype=object)
+    return column
+
+
+def _lazy_moments(method: Method, data: Any, *, nred: int, codes: np.ndarray | None, ngroups: int | None,
+                  policy: Policy, params: dict[str, Any], where: str,
+                  labels: Sequence[Any] | None) -> dict[str, Any]:
+    from logstats.accessors.dask import dask_stacked_moments
+
+    st = dask_stacked_moments(data, nred=nred, codes=codes, ngroups=ngroups, where=where)
+    if method.dask == "whole":
+        st = st.rechunk(-1)  # the merged moments: small, one value set per group
+    names = method.field_names
+    arr = st.map_blocks(_finalize_block, method=method.name, policy=policy, params=params, where=where,
+                        labels=labels, names=names, chunks=st.chunks[:-1] + ((len(names),),),
+                        dtype=np.float64)
+    return {name: _decode(method, name, arr[..., i]) for i, name in enumerate(names)}
+
+
+# --------------------------------------------------------------------------------------------- values
+
+def finalize_values(method: Method, path: str, data: np.ndarray, *, codes: np.ndarray | None,
+                    ngroups: int | None, policy: Policy, params: dict[str, Any], where: str,
+                    labels: Sequence[Any] | None) -> dict[str, np.ndarray]:
+    """A values kernel over the **last** axis of ``data``, every leading position in one call.
+
+    Position ``r`` of the leading axes and group ``g`` become flat group ``r * G + g``, so the kernel
+    sees one 1-D problem however many channels or time points there are. The policy is applied here:
+    missing values and (outside censoring) values at or below zero are counted per group and removed
+    before the kernel runs; a value at or below its own detection limit is censored and kept.
     """
-    data = np.asarray(data)
-    if data.ndim == 0:
-        data = data.reshape(1)
-    lead = data.shape[:-1]
+    x = as_float_array(data, where=where)
+    if x.ndim == 0:
+        x = x.reshape(1)
+    lead = x.shape[:-1]
     rows = int(np.prod(lead)) if lead else 1
-    width = data.shape[-1]
+    width = x.shape[-1]
     if codes is None:
         g, base = 1, np.zeros(width, dtype=np.intp)
     else:
         g, base = int(ngroups or 0), np.asarray(codes, dtype=np.intp)
     full = np.where(base[None, :] >= 0, base[None, :] + g * np.arange(rows)[:, None], -1).ravel()
-    if detection_limit is not None and np.ndim(detection_limit) > 0:
-        detection_limit = np.broadcast_to(np.asarray(detection_limit, dtype=np.float64), data.shape).ravel()
-    if detection_limit is not None:
-        kw["detection_limit"] = detection_limit
-    res = grouped_method(kind, data.reshape(-1), full, rows * g, where=where,
-                         labels=(list(labels) * rows) if labels is not None else None,
-                         nonpositive=nonpositive, skipna=skipna, **kw)
+    flat = x.reshape(-1)
+    posinf = np.isposinf(flat)
+    if posinf.any():
+        raise ValueError(f"{where} holds {int(posinf.sum())} value(s) of +inf; logstats refuses +inf always "
+                         "(replace it with NaN to have it skipped and counted as missing)")
+    missing = np.isnan(flat)
+    limit = policy.detection_limit
+    censored = np.zeros(flat.shape, dtype=bool)
+    if limit is not None:
+        if np.ndim(limit) > 0:
+            limit = np.broadcast_to(as_float_array(limit, where="detection_limit"), x.shape).reshape(-1)
+        with np.errstate(invalid="ignore"):
+            censored = ~missing & (flat <= limit)
+    with np.errstate(invalid="ignore"):
+        nonpos = (flat <= 0) & ~censored
+    keyed = full >= 0
+    G = rows * g
+    n_missing = np.bincount(full[missing & keyed], minlength=G).astype(np.int64)
+    n_nonpos = np.bincount(full[nonpos & keyed], minlength=G).astype(np.int64)
+    raise_for_counts(n_nonpos, policy=policy,
+                     where=where, labels=(list(labels) * rows) if labels is not None else None)
+    keep = keyed & ~missing & ~nonpos
+    kw = dict(params)
+    if limit is not None and path == method.censored:
+        kw["detection_limit"] = limit[keep] if np.ndim(limit) > 0 else limit
+    for name in method.row_params:
+        if isinstance(kw.get(name), list):
+            kw[name] = [np.asarray(a).reshape(-1)[keep] for a in kw[name]]
+        elif kw.get(name) is not None and np.ndim(kw[name]) > 0:
+            kw[name] = np.asarray(kw[name]).reshape(-1)[keep]
+    everything = bool(keep.all())
+    if method.pools_groups:
+        return _pooled(method, path, flat[keep], full[keep], rows, g, kw, n_missing, n_nonpos, policy, lead)
+    out = dict(_call(path, flat if everything else flat[keep], full if everything else full[keep], G,
+                     params=kw, rename=_RENAME.get(path)))
+    out["n_missing"], out["n_nonpositive"] = n_missing, n_nonpos
+    by_missing, by_nonpos = _undefined(policy, n_missing, n_nonpos)
+    _poison(method, out, by_missing, by_nonpos)
     shape = lead + ((g,) if codes is not None else ())
-    return {k: np.asarray(v).reshape(shape) for k, v in res.items()}
+    return {k: np.asarray(v).reshape(shape) for k, v in _typed(method, out, (G,)).items()}
 
 
-def fold_change(values: np.ndarray, level_codes: np.ndarray, n_levels: int, reference: int, *,
-                labels: Sequence[Any], where: str, nonpositive: str = "raise", skipna: bool = True,
-                stratum_codes: np.ndarray | None = None, n_strata: int = 1,
-                **kw: Any) -> dict[str, np.ndarray]:
+def _pooled(method: Method, path: str, x: np.ndarray, flat_codes: np.ndarray, rows: int, g: int,
+            kw: dict[str, Any], n_missing: np.ndarray, n_nonpos: np.ndarray, policy: Policy,
+            lead: tuple[int, ...]) -> dict[str, np.ndarray]:
+    """A method pooled over the groups of ``by``: one call per kept position (not per group)."""
+    pos = flat_codes // max(g, 1)
+    per_row: list[dict[str, np.ndarray]] = []
+    for r in range(rows):
+        sel = pos == r
+        call = {k: (v[sel] if isinstance(v, np.ndarray) and v.shape == x.shape else v) for k, v in kw.items()}
+        out = dict(_call(path, x[sel], flat_codes[sel] - r * g, g, params=call, rename=_RENAME.get(path)))
+        nm = n_missing.reshape(rows, g)[r].sum()
+        nn = n_nonpos.reshape(rows, g)[r].sum()
+        out["n_missing"], out["n_nonpositive"] = np.array(nm), np.array(nn)
+        by_missing, by_nonpos = _undefined(policy, np.array(nm), np.array(nn))
+        _poison(method, out, by_missing, by_nonpos)
+        per_row.append(_typed(method, out, ()))
+    names = list(per_row[0]) if per_row else list(method.field_names)
+    return {k: np.array([np.asarray(p[k]).item() if np.ndim(p[k]) == 0 else p[k] for p in per_row],
+                        dtype=per_row[0][k].dtype if per_row else np.float64).reshape(lead)
+            for k in names}
+
+
+#: Keyword renames between a method's keywords and its censored kernel's.
+_RENAME: dict[str, dict[str, str]] = {
+    "logstats.stats.censored:censored_summary": {"censored_method": "method"},
+}
+
+
+# --------------------------------------------------------------------------------------------- entry
+
+def compute(method: Method | str, data: Any, *, nred: int = 1, codes: np.ndarray | None = None,
+            ngroups: int | None = None, policy: Policy, params: dict[str, Any] | None = None,
+            where: str = "the input", labels: Sequence[Any] | None = None) -> dict[str, Any]:
+    """Run a declared method over the last ``nred`` axes of ``data`` (grouped by ``codes`` along one).
+
+    Results have shape ``data.shape[:-nred]`` (plus ``(ngroups,)`` with ``codes``). Moment methods on
+    dask input stay lazy; methods that need the values load them (their declaration says so).
+    """
+    md = METHODS[method] if isinstance(method, str) else method
+    params = {**md.defaults(), **(params or {})}
+    if md.variant is not None:
+        switch = params.pop(md.variant[0], None)
+        md = resolve(md, {md.variant[0]: switch})
+        params = {k: v for k, v in params.items() if k in md.defaults() or k == "detection_limit"}
+    params.pop("detection_limit", None)  # carried by the policy
+    if policy.censoring and md.censored is None:
+        raise TypeError(f"{md.name}() takes no detection_limit= (it has no censored form)")
+    addons = [(p, a) for p, a in ADDONS.get(md.name, ()) if params.get(p)]
+    for p, _ in ADDONS.get(md.name, ()):
+        params.pop(p, None)
+    if md.needs_values(params, policy):
+        arr = np.asarray(data)
+        arr = arr.reshape(arr.shape[: arr.ndim - nred] + (-1,)) if arr.ndim else arr.reshape(1)
+        if policy.censoring and np.ndim(policy.detection_limit) > 0:
+            lim = np.broadcast_to(np.asarray(policy.detection_limit, dtype=np.float64), np.shape(data))
+            policy = Policy(policy.skipna, policy.nonpositive, lim.reshape(arr.shape))
+        for name in md.row_params:  # one value per data value: laid out like the data
+            v = params.get(name)
+            if isinstance(v, list):  # several aligned arrays (one per nesting level)
+                params[name] = [np.broadcast_to(np.asarray(a), np.shape(data)).reshape(arr.shape) for a in v]
+            elif v is not None and np.ndim(v) > 0:
+                v = np.broadcast_to(as_float_array(v, where=f"{name}="), np.shape(data))
+                params[name] = v.reshape(arr.shape)
+        out = finalize_values(md, md.kernel_for(params, policy), arr, codes=codes, ngroups=ngroups,
+                              policy=policy, params=params, where=where, labels=labels)
+    elif is_dask(data):
+        out = _lazy_moments(md, data, nred=nred, codes=codes, ngroups=ngroups, policy=policy, params=params,
+                            where=where, labels=labels)
+    else:
+        m = _moments(np.asarray(data), nred, codes, ngroups, where)
+        out = finalize_moments(md, m, policy=policy, params=params, where=where, labels=labels)
+    for _p, addon in addons:
+        more = compute(addon, data, nred=nred, codes=codes, ngroups=ngroups, policy=policy,
+                       params={k: v for k, v in params.items() if k in addon.defaults()}, where=where,
+                       labels=labels)
+        out.update({k: v for k, v in more.items() if k not in out})
+    return out
+
+
+def _addons() -> dict[str, tuple[tuple[str, Method], ...]]:
+    from logstats.methods import LINEAR
+
+    return {"summary": (("linear", LINEAR),)}
+
+
+ADDONS = _addons()
+
+
+# --------------------------------------------------------------------------------------------- compare
+
+def compare(values: np.ndarray, level_codes: np.ndarray, n_levels: int, reference: int, *, policy: Policy,
+            labels: Sequence[Any], where: str, stratum_codes: np.ndarray | None = None, n_strata: int = 1,
+            replicate_codes: np.ndarray | None = None, n_replicates: int | None = None,
+            params: dict[str, Any]) -> dict[str, np.ndarray]:
     """Fold changes of every level against ``reference`` for all strata at once, with the shared
-    policy (``nonpositive="raise"`` refuses, naming the levels); shapes ``(n_strata, n_levels)``."""
-    from logstats.stats.compare import fold_change_codes
+    policy; every field has shape ``(n_strata, n_levels)``, the reference column included."""
+    md = METHODS["fold_change"]
+    kw = {**{k: v for k, v in params.items() if k not in ("replicate", "within")},
+          "nonpositive": policy.kernel_nonpositive, "skipna": policy.skipna}
+    if policy.censoring:
+        from logstats.stats.censored_compare import censored_fold_change
 
-    check_nonpositive(nonpositive)
-    res = fold_change_codes(values, level_codes, n_levels, reference, stratum_codes=stratum_codes,
-                            n_strata=n_strata, nonpositive="drop" if nonpositive == "raise" else nonpositive,
-                            skipna=skipna, where=where, **kw)
-    raise_for_counts(res["n_nonpositive"], nonpositive=nonpositive, where=where, labels=labels)
+        lim = np.broadcast_to(np.asarray(policy.detection_limit, dtype=np.float64), np.shape(values))
+        keep = {k: kw[k] for k in ("confidence_level", "adjust", "skipna", "nonpositive")}
+        if replicate_codes is not None or params.get("paired") or params.get("equivalence") is not None:
+            raise ValueError("detection_limit= in fold_change works with every value as a unit: it does not "
+                             "combine with replicate=, paired=True or equivalence= yet")
+        res = censored_fold_change(values, level_codes, n_levels, reference, detection_limit=lim,
+                                   stratum_codes=stratum_codes, n_strata=n_strata, **keep)
+    else:
+        res = kernel(md.kernel)(values, level_codes, n_levels, reference, stratum_codes=stratum_codes,
+                                n_strata=n_strata, replicate_codes=replicate_codes,
+                                n_replicates=n_replicates, where=where, **kw)
+    raise_for_counts(res["n_nonpositive"], policy=policy, where=where, labels=labels)
     return res
 
 
-def fold_change_from_moments(m: LogMoments, cell: np.ndarray, n_levels: int, reference: int, *,
-                             labels: Sequence[Any], where: str, nonpositive: str = "raise",
-                             skipna: bool = True, **kw: Any) -> dict[str, np.ndarray]:
-    """:func:`fold_change` for moments already built per cell or per replicate (dask partitions)."""
+def compare_from_moments(m: LogMoments, stratum_level: np.ndarray, n_levels: int, reference: int, *,
+                         policy: Policy, labels: Sequence[Any], where: str, params: dict[str, Any],
+                         **layout: Any) -> dict[str, np.ndarray]:
+    """:func:`compare` for moments already built per (stratum, level) or per replicate (dask partitions);
+    ``stratum_level`` is each row's flat index ``stratum * n_levels + level``."""
     from logstats.stats.compare import fold_change_moments
 
-    check_nonpositive(nonpositive)
-    res = fold_change_moments(m, cell, n_levels, reference,
-                              nonpositive="drop" if nonpositive == "raise" else nonpositive,
-                              skipna=skipna, **kw)
-    raise_for_counts(res["n_nonpositive"], nonpositive=nonpositive, where=where, labels=labels)
+    if policy.censoring:
+        raise ValueError("detection_limit= in fold_change needs the values: compute the dask DataFrame "
+                         "first (the censored regression cannot be merged from moments)")
+    res = fold_change_moments(m, stratum_level, n_levels, reference, nonpositive=policy.kernel_nonpositive,
+                              skipna=policy.skipna, **params, **layout)
+    raise_for_counts(res["n_nonpositive"], policy=policy, where=where, labels=labels)
     return res
+
+
+def warn_if_empty(ratio: np.ndarray, *, reference: Any, where: str, paired: bool, n: np.ndarray,
+                  n_reference: np.ndarray, stacklevel: int = 3) -> None:
+    """Say why a comparison gave no number at all (a LogstatsWarning), instead of an empty table."""
+    r = np.asarray(ratio, dtype=np.float64)
+    if r.size == 0 or np.isfinite(r).any():
+        return
+    if paired and int(np.asarray(n).sum()) == 0:
+        why = ("no replicate label of any level is shared with the reference level, so nothing could be "
+               "paired; check replicate= or pass paired=False")
+    elif int(np.asarray(n_reference).sum()) == 0:
+        why = f"the reference level {reference!r} has no usable value"
+    else:
+        why = "every level has fewer than two usable units, or the policy made every group undefined"
+    warnings.warn(f"fold_change on {where}: no comparison could be computed: {why}", LogstatsWarning,
+                  stacklevel=stacklevel)
+
+
+def field_of(method: str, name: str) -> Field:
+    return METHODS[method].field(name)
+
+
+def names_of(method: str) -> tuple[str, ...]:
+    return METHODS[method].field_names
+
+
+_ = (Callable, FIELDS)

@@ -12,7 +12,8 @@ import pandas as pd
 
 from logstats.core.transform import LogstatsWarning
 
-__all__ = ["Groups", "column_values", "factorize_keys", "resolve_keys", "value_columns"]
+__all__ = ["Groups", "column_values", "factorize_keys", "is_label_of", "resolve_keys", "resolve_limit",
+           "value_columns"]
 
 
 @dataclass(frozen=True)
@@ -214,3 +215,74 @@ def column_values(s: pd.Series, name: Hashable) -> np.ndarray:
     if s.dtype == np.float64:
         return s.to_numpy(copy=False)
     return s.to_numpy(dtype=np.float64, na_value=np.nan)
+
+
+def is_label_of(df: pd.DataFrame, key: Any) -> bool:
+    """True when ``key`` is (hashable and) a column label of ``df``: labels of any type are data."""
+    if key is None or isinstance(key, (pd.Series, np.ndarray, list, pd.Index)):
+        return False
+    try:
+        return key in df.columns
+    except TypeError:  # unhashable
+        return False
+
+
+def resolve_limit(df: pd.DataFrame, detection_limit: Any, keyword: str = "detection_limit") -> Any:
+    """``detection_limit=`` as None, one number, or float64 per-row limits aligned with ``df``.
+
+    A column label of ``df`` takes precedence (labels may be numbers); then a real number; then a
+    Series, aligned on the index like pandas (a label the data has but the Series lacks gives NaN,
+    i.e. not censored; an index that cannot be aligned is an error); then an array of the data's
+    length. Anything else is a TypeError naming the keyword.
+    """
+    if detection_limit is None:
+        return None
+    if is_label_of(df, detection_limit):
+        return column_values(df[detection_limit], detection_limit)
+    if isinstance(detection_limit, (int, float, np.integer, np.floating)) and not isinstance(
+            detection_limit, (bool, np.bool_)):
+        return float(detection_limit)
+    if isinstance(detection_limit, pd.Series):
+        s = detection_limit
+        if not s.index.equals(df.index):
+            if not s.index.is_unique:
+                raise ValueError(f"{keyword}= Series has a duplicated index that does not match the "
+                                 "data's; pass one aligned on the data's index (or a plain array)")
+            s = s.reindex(df.index)
+        return column_values(s, keyword)
+    if isinstance(detection_limit, (np.ndarray, list, tuple, pd.Index)):
+        arr = np.asarray(detection_limit)
+        if arr.ndim != 1 or len(arr) != len(df):
+            raise ValueError(f"{keyword}= array has shape {arr.shape}; the data has {len(df)} rows "
+                             "(pass one value per row, a number, or a column label)")
+        return column_values(pd.Series(arr), keyword)
+    if isinstance(detection_limit, str):
+        raise KeyError(f"{keyword}={detection_limit!r} is not a column; there are {list(df.columns)!r}")
+    raise TypeError(f"{keyword}= takes a number, a column label or an aligned array, not "
+                    f"{type(detection_limit).__name__}")
+
+
+def nested_codes(keys: pd.DataFrame) -> list[np.ndarray]:
+    """Codes of each nesting level (columns outermost first), every level read within its outer ones:
+    well ``A1`` on day 1 and ``A1`` on day 2 are two wells. A row with a missing label at a level (or
+    an outer one) gets -1 there; the statistics layer counts such rows."""
+    out = []
+    missing = np.zeros(len(keys), dtype=bool)
+    cols = list(keys.columns)
+    for i in range(len(cols)):
+        missing = missing | keys.iloc[:, i].isna().to_numpy()
+        codes = keys.groupby(cols[: i + 1], sort=False, dropna=False, observed=True).ngroup().to_numpy()
+        out.append(np.where(missing, -1, codes).astype(np.intp))
+    return out
+
+
+def nested_levels(nested: Any, keyword: str = "nested") -> list[Hashable]:
+    if nested is None:
+        raise ValueError(f"variance_components needs {keyword}= (the nesting levels, outermost first, e.g. "
+                         "nested=['day', 'well'])")
+    levels = list(nested) if isinstance(nested, (list, tuple)) else [nested]
+    if not levels:
+        raise ValueError(f"{keyword}= is empty; name at least one nesting level")
+    if len(set(map(repr, levels))) != len(levels):
+        raise ValueError(f"{keyword}={levels!r} names a level twice")
+    return levels

@@ -10,13 +10,14 @@ from typing import Any
 
 import numpy as np
 
-from logstats.accessors._engine import finalize, is_dask, raw_reduce, stacked_moments
+from logstats.accessors._engine import compute, is_dask
 from logstats.core import moments as _core_moments
 from logstats.core.moments import FIELDS, LogMoments, normalize_axes
 from logstats.core.transform import exp_values, log_values
+from logstats.methods import Policy
 
-__all__ = ["combine_moments", "exp", "fit", "gcv", "gmean", "gsd", "lognormal_mean", "log", "moments",
-           "scale_check", "summary"]
+__all__ = ["combine_moments", "exceedance", "exp", "fit", "gcv", "gmean", "gsd", "lognormal_mean", "log",
+           "moments", "quantile", "scale_check", "summary", "tolerance_limit"]
 
 
 def _prepare(x: Any, axis: Any) -> tuple[Any, int]:
@@ -30,17 +31,27 @@ def _prepare(x: Any, axis: Any) -> tuple[Any, int]:
     return x.transpose(keep + list(axes)), len(axes)
 
 
-def _run(kind: str, x: Any, axis: Any, *, skipna: bool, nonpositive: str,
-         params: dict[str, Any] | None = None) -> tuple[Any, tuple[str, ...]]:
+def _run(name: str, x: Any, axis: Any, *, skipna: bool = True, nonpositive: str = "raise",
+         detection_limit: Any = None, **params: Any) -> dict[str, Any]:
     data, nred = _prepare(x, axis)
-    st = stacked_moments(data, nred=nred, where="the input")
-    return finalize(st, kind=kind, skipna=skipna, nonpositive=nonpositive, where="the input", params=params)
+    limit = detection_limit
+    if limit is not None and np.ndim(limit) > 0:
+        limit, _ = _prepare(np.broadcast_to(np.asarray(limit, dtype=np.float64), np.shape(x)), axis)
+    policy = Policy(skipna=skipna, nonpositive=nonpositive, detection_limit=limit)
+    return compute(name, data, nred=nred, policy=policy, params=params, where="the input")
 
 
 def _scalar(a: Any) -> Any:
     if is_dask(a):
         return a
-    return float(a) if np.ndim(a) == 0 else a
+    if np.ndim(a) == 0:
+        v = np.asarray(a).item()
+        return v
+    return a
+
+
+def _fields(out: dict[str, Any]) -> dict[str, Any]:
+    return {k: _scalar(v) for k, v in out.items()}
 
 
 def gmean(x: Any, *, axis: Any = None, skipna: bool = True, nonpositive: str = "raise") -> Any:
@@ -53,48 +64,32 @@ def gmean(x: Any, *, axis: Any = None, skipna: bool = True, nonpositive: str = "
     >>> round(logstats.gmean([1e300, 1e-300, 1.0]), 12)
     1.0
     """
-    out, _ = _run("gmean", x, axis, skipna=skipna, nonpositive=nonpositive)
-    return _scalar(out[..., 0])
+    return _scalar(_run("gmean", x, axis, skipna=skipna, nonpositive=nonpositive)["gmean"])
 
 
 def gsd(x: Any, *, axis: Any = None, ddof: float = 1, skipna: bool = True, nonpositive: str = "raise") -> Any:
     """Geometric standard deviation ``exp(sd(ln x))`` with ``ddof=1`` (``scipy.stats.gstd``'s default)."""
-    out, _ = _run("gsd", x, axis, skipna=skipna, nonpositive=nonpositive, params={"ddof": ddof})
-    return _scalar(out[..., 0])
+    return _scalar(_run("gsd", x, axis, skipna=skipna, nonpositive=nonpositive, ddof=ddof)["gsd"])
 
 
 def gcv(x: Any, *, axis: Any = None, ddof: float = 1, skipna: bool = True, nonpositive: str = "raise") -> Any:
     """Geometric coefficient of variation ``sqrt(exp(s²) − 1)``, s with ``ddof=1``."""
-    out, _ = _run("gcv", x, axis, skipna=skipna, nonpositive=nonpositive, params={"ddof": ddof})
-    return _scalar(out[..., 0])
+    return _scalar(_run("gcv", x, axis, skipna=skipna, nonpositive=nonpositive, ddof=ddof)["gcv"])
 
 
 def moments(x: Any, *, axis: Any = None) -> LogMoments:
     """The :class:`LogMoments` of ``x`` over ``axis`` (dask input: fields are lazy dask arrays)."""
-    out, _ = _run("moments", x, axis, skipna=True, nonpositive="drop")
-    if is_dask(out):
-        return LogMoments(**{k: out[..., i].astype(np.int64) if k.startswith("n") else out[..., i]
-                             for i, k in enumerate(FIELDS)})
-    return LogMoments.unstack(out)
+    out = _run("moments", x, axis, nonpositive="drop")
+    return LogMoments(**{k: out[k] for k in FIELDS})
 
 
 def summary(x: Any, *, axis: Any = None, confidence_level: float = 0.95, ddof: float = 1, skipna: bool = True,
-            nonpositive: str = "raise") -> dict[str, Any]:
-    """The ``summary()`` fields over ``axis`` as a dict of arrays (or floats)."""
-    out, names = _run("summary", x, axis, skipna=skipna, nonpositive=nonpositive,
-                      params={"confidence_level": confidence_level, "ddof": ddof})
-    return {k: _scalar(out[..., i]) for i, k in enumerate(names)}
-
-
-def _raw(kind: str, x: Any, axis: Any, **kw: Any) -> dict[str, Any]:
-    data, nred = _prepare(np.asarray(x), axis)  # raw-value methods need every value: dask input is loaded
-    limit = kw.pop("detection_limit", None)
-    if limit is not None and np.ndim(limit) > 0:
-        limit, _ = _prepare(np.broadcast_to(np.asarray(limit, dtype=np.float64), np.shape(x)), axis)
-        limit = limit.reshape(limit.shape[: limit.ndim - nred] + (-1,))
-    data = data.reshape(data.shape[: data.ndim - nred] + (-1,))
-    res = raw_reduce(kind, data, detection_limit=limit, **kw)
-    return {k: (v.item() if np.ndim(v) == 0 else v) for k, v in res.items()}
+            nonpositive: str = "raise", detection_limit: Any = None, censored_method: str = "mle",
+            linear: bool = False) -> dict[str, Any]:
+    """The ``summary()`` fields over ``axis`` as a dict of arrays (or numbers)."""
+    return _fields(_run("summary", x, axis, skipna=skipna, nonpositive=nonpositive, ddof=ddof,
+                        confidence_level=confidence_level, detection_limit=detection_limit,
+                        censored_method=censored_method, linear=linear))
 
 
 def fit(x: Any, *, axis: Any = None, detection_limit: Any = None, skipna: bool = True,
@@ -109,22 +104,58 @@ def fit(x: Any, *, axis: Any = None, detection_limit: Any = None, skipna: bool =
     >>> res["n_censored"], res["converged"]
     (1, True)
     """
-    return _raw("fit", x, axis, detection_limit=detection_limit, skipna=skipna, nonpositive=nonpositive,
-                max_iter=max_iter, tol=tol)
+    return _fields(_run("fit", x, axis, detection_limit=detection_limit, skipna=skipna,
+                        nonpositive=nonpositive, max_iter=max_iter, tol=tol))
 
 
 def scale_check(x: Any, *, axis: Any = None, skipna: bool = True,
-                nonpositive: str = "raise") -> dict[str, Any]:
+                nonpositive: str = "raise", **params: Any) -> dict[str, Any]:
     """Normal versus log-normal over ``axis`` on the original scale (AIC, normality p-values, ratios)."""
-    return _raw("scale_check", x, axis, skipna=skipna, nonpositive=nonpositive)
+    return _fields(_run("scale_check", _loaded(x), axis, skipna=skipna, nonpositive=nonpositive, **params))
 
 
 def lognormal_mean(x: Any, *, axis: Any = None, method: str = "cox", confidence_level: float = 0.95,
                    random_state: Any = None, n_draws: int = 10000, skipna: bool = True,
-                   nonpositive: str = "raise") -> dict[str, Any]:
+                   nonpositive: str = "raise", detection_limit: Any = None) -> dict[str, Any]:
     """Arithmetic mean implied by a log-normal, ``exp(ȳ + s²/2)``, with a CI over ``axis``."""
-    return _raw("lognormal_mean", x, axis, method=method, confidence_level=confidence_level,
-                random_state=random_state, n_draws=n_draws, skipna=skipna, nonpositive=nonpositive)
+    return _fields(_run("lognormal_mean", x, axis, method=method, confidence_level=confidence_level,
+                        random_state=random_state, n_draws=n_draws, skipna=skipna, nonpositive=nonpositive,
+                        detection_limit=detection_limit))
+
+
+def quantile(x: Any, *, axis: Any = None, q: float = 0.95, confidence_level: float = 0.95,
+             skipna: bool = True, nonpositive: str = "raise", detection_limit: Any = None) -> dict[str, Any]:
+    """Log-normal percentile ``exp(ȳ + z_q·s)`` over ``axis`` with its exact (non-central t) interval.
+
+    Examples
+    --------
+    >>> import numpy as np, logstats
+    >>> res = logstats.quantile(np.exp([0.0, 0.5, 1.0, 1.5, 2.0]), q=0.5)
+    >>> round(res["estimate"], 6)
+    2.718282
+    """
+    return _fields(_run("quantile", x, axis, q=q, confidence_level=confidence_level, skipna=skipna,
+                        nonpositive=nonpositive, detection_limit=detection_limit))
+
+
+def tolerance_limit(x: Any, *, axis: Any = None, coverage: float = 0.95, side: str = "upper",
+                    confidence_level: float = 0.95, skipna: bool = True, nonpositive: str = "raise",
+                    detection_limit: Any = None) -> dict[str, Any]:
+    """Log-normal tolerance limits over ``axis`` (exact one-sided factors; two-sided Odeh-Owen)."""
+    return _fields(_run("tolerance_limit", x, axis, coverage=coverage, side=side,
+                        confidence_level=confidence_level, skipna=skipna, nonpositive=nonpositive,
+                        detection_limit=detection_limit))
+
+
+def exceedance(x: Any, *, limit: Any, axis: Any = None, confidence_level: float = 0.95, skipna: bool = True,
+               nonpositive: str = "raise", detection_limit: Any = None) -> dict[str, Any]:
+    """Estimated share above ``limit`` over ``axis`` with its exact interval, and the observed count."""
+    return _fields(_run("exceedance", _loaded(x), axis, limit=limit, confidence_level=confidence_level,
+                        skipna=skipna, nonpositive=nonpositive, detection_limit=detection_limit))
+
+
+def _loaded(x: Any) -> Any:
+    return np.asarray(x) if is_dask(x) else x
 
 
 def log(x: Any, *, base: Any = "e", nonpositive: str = "raise") -> np.ndarray:

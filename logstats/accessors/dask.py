@@ -12,6 +12,8 @@ from typing import Any
 
 import numpy as np
 
+from logstats.accessors._api import install
+from logstats.accessors._face import FigureMethods
 from logstats.core.moments import FIELDS, LogMoments, moments_along, moments_by_codes, reduce_moments
 
 __all__ = ["dask_stacked_moments"]
@@ -100,6 +102,55 @@ SPLIT_EVERY = 8
 _UNKEYED_HINT = ("as pandas groupby does; pass dropna=False to keep them as a group of their own")
 
 
+class _AfterImport:
+    """A ``sys.meta_path`` finder that runs ``callback`` right after module ``name`` is first imported.
+
+    It lets ``import logstats`` register the dask DataFrame accessor without importing dask: the
+    accessor appears the moment the user imports ``dask.dataframe`` (or at once if it already is).
+    """
+
+    def __init__(self, name: str, callback: Any) -> None:
+        self.name = name
+        self.callback = callback
+        self._busy = False
+
+    def find_spec(self, fullname: str, path: Any = None, target: Any = None) -> Any:
+        import importlib.util
+        import sys
+
+        if fullname != self.name or self._busy:
+            return None
+        self._busy = True
+        try:
+            spec = importlib.util.find_spec(fullname)
+        finally:
+            self._busy = False
+        if spec is None or spec.loader is None or not hasattr(spec.loader, "exec_module"):
+            return None
+        run = spec.loader.exec_module
+        finder = self
+
+        def exec_module(module: Any) -> None:
+            run(module)
+            if finder in sys.meta_path:
+                sys.meta_path.remove(finder)
+            finder.callback()
+
+        spec.loader.exec_module = exec_module  # type: ignore[method-assign]
+        return spec
+
+
+def register_when_imported() -> None:
+    """Register the dask DataFrame accessor now if ``dask.dataframe`` is loaded, else when it is."""
+    import sys
+
+    if "dask.dataframe" in sys.modules:
+        register_dask_dataframe()
+        return
+    if not any(isinstance(f, _AfterImport) for f in sys.meta_path):
+        sys.meta_path.insert(0, _AfterImport("dask.dataframe", register_dask_dataframe))
+
+
 def register_dask_dataframe() -> bool:
     """Register the ``.logstats`` accessor on ``dask.dataframe.DataFrame`` and ``Series``.
 
@@ -150,7 +201,7 @@ def _merge_partitions(*parts: tuple[Any, int]) -> tuple[Any, int]:
 class _Request:
     """Everything :func:`_finish` needs to shape the result exactly as the pandas accessor would."""
 
-    kind: str
+    kind: str  # the declared method's name
     by: list[Any] | None
     key_names: list[Any] | None
     columns: list[Any]
@@ -168,10 +219,11 @@ def _finish(merged: tuple[Any, int], req: _Request) -> Any:
 
     import pandas as pd
 
-    from logstats.accessors._engine import finalize
+    from logstats.accessors._engine import finalize_moments
     from logstats.accessors._labels import Groups
     from logstats.accessors.pandas import LogstatsFrameAccessor, LogstatsSeriesAccessor
     from logstats.core.transform import LogstatsWarning, describe_where
+    from logstats.methods import METHODS, Policy
 
     table, n_unkeyed = merged
     if n_unkeyed:
@@ -182,12 +234,13 @@ def _finish(merged: tuple[Any, int], req: _Request) -> Any:
             stacklevel=2,
         )
     several = req.by is not None and len(req.columns) > 1
+    md = METHODS[req.kind]
+    policy = Policy(skipna=req.skipna, nonpositive=req.nonpositive)
     results = []
-    names: tuple[str, ...] = ()
     index = None
     for col in req.columns:
         if req.by is None:
-            stacked = table.loc[col, list(FIELDS)].to_numpy(dtype=np.float64)
+            sub = table.loc[[col], list(FIELDS)]
             labels = None
         else:
             sub = table
@@ -197,37 +250,27 @@ def _finish(merged: tuple[Any, int], req: _Request) -> Any:
             if req.sort:
                 sub = sub.sort_index()
             index = sub.index
-            stacked = sub[list(FIELDS)].to_numpy(dtype=np.float64)
             labels = index.tolist()
-        where = describe_where(column=str(col))
-        arr, names = finalize(stacked, kind=req.kind, skipna=req.skipna, nonpositive=req.nonpositive,
-                              where=where, labels=labels, params=req.params)
-        results.append((col, arr))
+        m = LogMoments(**{f: sub[f].to_numpy(dtype=np.int64 if f.startswith("n") else np.float64)
+                          for f in FIELDS})
+        if req.by is None:
+            m = m.take(0)
+        out = finalize_moments(md, m, policy=policy, params=dict(req.params or {}),
+                               where=describe_where(column=str(col)), labels=labels)
+        results.append((col, out))
     groups = None
     if index is not None:
         index = index.copy()
         index.names = list(req.key_names or index.names)
         groups = Groups(codes=np.empty(0, dtype=np.intp), ngroups=len(index), index=index,
                         names=list(index.names), n_unkeyed=n_unkeyed)
-    if req.kind in ("moments", "summary"):
-        if req.is_series:
-            shaper: Any = LogstatsSeriesAccessor(pd.Series([], dtype=np.float64, name=req.series_name))
-        else:
-            shaper = LogstatsFrameAccessor(pd.DataFrame())
-        return shaper._stacked_to_tidy(results, names, groups)
-    # gmean / gsd / gcv: the shapes of the pandas accessor's single-statistic methods
-    if groups is None:
-        values = {c: float(a[0]) for c, a in results}
-        if req.is_series:
-            return next(iter(values.values()))
-        s = pd.Series(values, name=req.kind)
-        s.index.name = "variable"
-        return s
     if req.is_series:
-        return pd.Series(results[0][1][:, 0], index=groups.index, name=req.series_name)
-    out = pd.DataFrame({c: a[:, 0] for c, a in results}, index=groups.index)
-    out.columns.name = None
-    return out
+        shaper: Any = LogstatsSeriesAccessor(pd.Series([], dtype=np.float64, name=req.series_name))
+    else:
+        shaper = LogstatsFrameAccessor(pd.DataFrame())
+    if md.shape == "single":
+        return shaper._single_shape(req.kind, results, groups)
+    return shaper._tidy(results, groups)
 
 
 def _lazy_reduce(ddf: Any, kind: str, by: Any, columns: Any, *, key_names: list[Any] | None,
@@ -286,9 +329,10 @@ def _fold_finish(merged: tuple[Any, int], req: _FoldRequest) -> Any:
 
     import pandas as pd
 
-    from logstats.accessors._engine import fold_change_from_moments
+    from logstats.accessors._engine import compare_from_moments, warn_if_empty
     from logstats.accessors.pandas import fold_change_frame
     from logstats.core.transform import LogstatsWarning, describe_where
+    from logstats.methods import Policy
 
     table, n_unkeyed = merged
     keys = req.within + [req.by] + ([req.replicate] if req.replicate is not None else [])
@@ -325,22 +369,35 @@ def _fold_finish(merged: tuple[Any, int], req: _FoldRequest) -> Any:
             n_strata = len(sidx)
         else:
             scodes, n_strata = np.zeros(len(idx), dtype=np.intp), 1
-        kw = dict(req.options)
+        opts = dict(req.options)
+        policy = Policy(skipna=opts.pop("skipna"), nonpositive=opts.pop("nonpositive"))
+        layout: dict[str, Any] = {"n_strata": n_strata}
         if req.replicate is not None:
             rcodes, rlabels = pd.factorize(key_values(idx, req.replicate), sort=True)
-            kw.update(replicate=rcodes, n_replicates=len(rlabels))
+            layout.update(replicate=rcodes, n_replicates=len(rlabels))
         m = LogMoments(**{f: sub[f].to_numpy() for f in FIELDS})
-        cell = np.asarray(scodes, dtype=np.intp) * len(levels) + lcodes
-        results.append((col, fold_change_from_moments(
-            m, cell, len(levels), levels.index(req.reference), labels=levels,
-            where=describe_where(column=str(col)), n_strata=n_strata, **kw)))
+        stratum_level = np.asarray(scodes, dtype=np.intp) * len(levels) + lcodes
+        ref = levels.index(req.reference)
+        res = compare_from_moments(m, stratum_level, len(levels), ref, policy=policy, labels=levels,
+                                   where=describe_where(column=str(col)), params=opts, **layout)
+        keep = [i for i in range(len(levels)) if i != ref]
+        warn_if_empty(res["ratio"][:, keep], reference=req.reference, where=describe_where(column=str(col)),
+                      paired=bool(opts.get("paired")), n=res["n"][:, keep],
+                      n_reference=res["n_reference"][:, keep], stacklevel=2)
+        results.append((col, res))
     level_index = pd.Index(level_labels, name=req.by)
     return fold_change_frame(results, level_index, levels.index(req.reference), strata_index,
                              "replicate" if req.replicate is not None else "value")
 
 
-class _DaskFrameBase:
-    """Shared by the dask DataFrame and Series accessors: build the lazy per-partition reduction."""
+class _DaskFrameBase(FigureMethods):
+    """Shared by the dask DataFrame and Series accessors: build the lazy per-partition reduction.
+
+    Every declared statistic is here (from :mod:`logstats.methods`). Moment statistics are reduced
+    partition by partition and merged exactly; the others (order statistics, censoring, resampling)
+    need every value of a group together: their result is still a lazy dask object, whose computation
+    loads the data into one pandas frame (said in each method's docstring).
+    """
 
     _obj: Any
 
@@ -348,46 +405,116 @@ class _DaskFrameBase:
         return _lazy_reduce(self._obj, kind, by, columns, key_names=None, series_name=None,
                             is_series=False, **kw)
 
-    # ------------------------------------------------------------------ public methods
-    def gmean(self, by: Any = None, *, columns: Any = None, skipna: bool = True, nonpositive: str = "raise",
-              observed: bool = True, dropna: bool = True, sort: bool = True,
-              split_every: int | None = None) -> Any:
-        """Geometric mean ``exp(mean(ln x))`` per column and group, lazily (see the class docstring)."""
-        return self._reduce("gmean", by, columns, skipna=skipna, nonpositive=nonpositive, observed=observed,
-                            dropna=dropna, sort=sort, split_every=split_every)
+    def _statistic(self, name: str, args: dict[str, Any]) -> Any:
+        from logstats.methods import METHODS, Policy
 
-    def gsd(self, by: Any = None, *, columns: Any = None, ddof: float = 1, skipna: bool = True,
-            nonpositive: str = "raise", observed: bool = True, dropna: bool = True, sort: bool = True,
-            split_every: int | None = None) -> Any:
-        """Geometric standard deviation ``exp(sd(ln x))`` with ``ddof=1`` (as ``scipy.stats.gstd``)."""
-        return self._reduce("gsd", by, columns, skipna=skipna, nonpositive=nonpositive, observed=observed,
-                            dropna=dropna, sort=sort, split_every=split_every, params={"ddof": ddof})
+        md = METHODS[name]
+        limit = args.get("detection_limit")
+        params = {p.name: args[p.name] for p in md.params if p.name != "detection_limit"}
+        lazy_ok = (md.reduction == "moments" and limit is None and not params.get("linear")
+                   and not md.needs_values(params, Policy(nonpositive="drop")))
+        if not lazy_ok:
+            return self._loaded(name, args)
+        return self._reduce(name, args["by"], args["columns"], skipna=args["skipna"],
+                            nonpositive=args["nonpositive"], observed=args["observed"], dropna=args["dropna"],
+                            sort=args["sort"], split_every=args["split_every"],
+                            params={k: v for k, v in params.items() if k != "linear"})
 
-    def gcv(self, by: Any = None, *, columns: Any = None, ddof: float = 1, skipna: bool = True,
-            nonpositive: str = "raise", observed: bool = True, dropna: bool = True, sort: bool = True,
-            split_every: int | None = None) -> Any:
-        """Geometric coefficient of variation ``sqrt(exp(s²) − 1)``, s the SD of ln x with ``ddof=1``."""
-        return self._reduce("gcv", by, columns, skipna=skipna, nonpositive=nonpositive, observed=observed,
-                            dropna=dropna, sort=sort, split_every=split_every, params={"ddof": ddof})
+    def _pandas_call(self) -> tuple[Any, Any]:
+        """(the frame to load, a function of the loaded pandas frame returning its accessor and keys)."""
+        return self._obj, lambda pdf: (pdf.logstats, {})
 
-    def moments(self, by: Any = None, *, columns: Any = None, skipna: bool = True, nonpositive: str = "raise",
-                observed: bool = True, dropna: bool = True, sort: bool = True,
-                split_every: int | None = None) -> Any:
-        """The merged sufficient statistics ``n, mean_log, m2_log, n_missing, n_nonpositive, n_censored``."""
-        return self._reduce("moments", by, columns, skipna=skipna, nonpositive=nonpositive,
-                            observed=observed, dropna=dropna, sort=sort, split_every=split_every)
+    def _loaded(self, name: str, args: dict[str, Any]) -> Any:
+        """A method that needs the values: lazily, the partitions are loaded into one pandas frame and the
+        pandas accessor computes. The empty result template comes from the same call on the meta."""
+        import dask.dataframe as dd
+        from dask import delayed
 
-    def summary(self, by: Any = None, *, columns: Any = None, confidence_level: float = 0.95,
-                ddof: float = 1, skipna: bool = True, nonpositive: str = "raise", observed: bool = True,
-                dropna: bool = True, sort: bool = True, split_every: int | None = None) -> Any:
-        """Log-scale summary ``n, n_missing, n_nonpositive, gmean, gsd, gcv, ci_low, ci_high, ci_factor``.
+        args = dict(args)
+        args.pop("split_every", None)
+        frame, accessor = self._pandas_call()
+        template = _template(lambda pdf: _call_pandas(accessor, pdf, name, args), frame)
+        result = delayed(_load_and_call, pure=True)(accessor, name, args, *frame.to_delayed())
+        if template is None or np.isscalar(template):
+            return result
+        return dd.from_delayed([result], meta=template, verify_meta=False)
 
-        The t interval of the geometric mean and the spreads (``ddof``, default 1) come from the
-        merged moments through the same finalizer as :meth:`pandas.DataFrame.logstats.summary`.
-        """
-        return self._reduce("summary", by, columns, skipna=skipna, nonpositive=nonpositive,
-                            observed=observed, dropna=dropna, sort=sort, split_every=split_every,
-                            params={"confidence_level": confidence_level, "ddof": ddof})
+    def _plot_source(self) -> Any:
+        """Figures need every value: the dask frame is computed (loaded) first."""
+        return self._obj.compute()
+
+    def log(self, *, base: Any = "e", columns: Any = None, nonpositive: str = "raise") -> Any:
+        """Same-shape log transform, partition by partition (lazy); see the pandas ``log``."""
+        meta = self._obj._meta.logstats.log(base=base, columns=columns, nonpositive=nonpositive) \
+            if columns is not None or not _is_series(self._obj) else \
+            self._obj._meta.logstats.log(base=base, nonpositive=nonpositive)
+        kw = {"base": base, "nonpositive": nonpositive}
+        if not _is_series(self._obj):
+            kw["columns"] = columns
+        return self._obj.map_partitions(lambda p: p.logstats.log(**kw), meta=meta)
+
+    def exp(self, *, base: Any = "e", columns: Any = None) -> Any:
+        """Exact inverse of :meth:`log`, partition by partition (lazy)."""
+        kw: dict[str, Any] = {"base": base}
+        if not _is_series(self._obj):
+            kw["columns"] = columns
+        meta = self._obj._meta.logstats.exp(**kw)
+        return self._obj.map_partitions(lambda p: p.logstats.exp(**kw), meta=meta)
+
+
+install(_DaskFrameBase, "dask")
+
+
+def _is_series(obj: Any) -> bool:
+    import dask.dataframe as dd
+
+    return isinstance(obj, dd.Series)
+
+
+def _call_pandas(accessor: Any, pdf: Any, name: str, args: dict[str, Any]) -> Any:
+    acc, extra = accessor(pdf)
+    return getattr(acc, name)(**{**args, **extra})
+
+
+def _load_and_call(accessor: Any, name: str, args: dict[str, Any], *parts: Any) -> Any:
+    import pandas as pd
+
+    pdf = pd.concat(parts) if len(parts) != 1 else parts[0]
+    return _call_pandas(accessor, pdf, name, args)
+
+
+def _template(fn: Any, frame: Any) -> Any:
+    """The result's empty template: the call on the (empty) meta, else on dask's non-empty meta."""
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            out = fn(frame._meta)
+        except (ValueError, TypeError, KeyError, IndexError):
+            out = fn(frame._meta_nonempty)
+    return out.iloc[:0] if hasattr(out, "iloc") and getattr(out, "ndim", 0) == 2 else out
+
+
+def _fold_template(req: _FoldRequest) -> Any:
+    """The empty fold-change table for these options, from the kernel on a tiny numeric problem."""
+    import pandas as pd
+
+    from logstats.accessors.pandas import fold_change_frame
+    from logstats.stats.compare import fold_change_codes
+
+    opts = {k: v for k, v in req.options.items() if k not in ("skipna", "nonpositive")}
+    rep = np.array([0, 1, 0, 1]) if req.replicate is not None else None
+    res = fold_change_codes(np.array([1.0, 2.0, 3.0, 5.0]), np.array([0, 0, 1, 1]), 2, 0, replicate_codes=rep,
+                            n_replicates=2 if rep is not None else None, **opts)
+    strata = None
+    if req.within:
+        strata = pd.MultiIndex.from_tuples([tuple(None for _ in req.within)], names=req.within) \
+            if len(req.within) > 1 else pd.Index([None], name=req.within[0], dtype=object)
+    results = [(c, res) for c in req.columns]
+    frame = fold_change_frame(results, pd.Index([None, None], name=req.by, dtype=object), 0, strata,
+                              "replicate" if req.replicate is not None else "value")
+    return frame.iloc[:0]
 
 
 class LogstatsDaskFrameAccessor(_DaskFrameBase):
@@ -431,7 +558,8 @@ class LogstatsDaskFrameAccessor(_DaskFrameBase):
         Every partition is reduced to log-moments per (``within``..., ``by``[, ``replicate``]); the
         tables are merged exactly and the test runs on the merged moments
         (:func:`logstats.stats.compare.fold_change_moments`), so the result equals the pandas one on
-        the same rows. Returns a ``dask.delayed.Delayed``; ``.compute()`` gives the pandas table. Rows
+        the same rows. Returns a lazy one-partition dask DataFrame, like every other method;
+        ``.compute()`` gives the pandas table. Rows
         whose replicate label is missing are left out with the other missing keys (counted in the
         warning) rather than in ``n_no_replicate``.
         """
@@ -454,12 +582,16 @@ class LogstatsDaskFrameAccessor(_DaskFrameBase):
                                         equivalence_alpha=equivalence_alpha, skipna=skipna,
                                         nonpositive=nonpositive))
         part_kw: dict[str, Any] = {"by": keys, "columns": cols, "observed": observed, "dropna": dropna}
+        import dask.dataframe as dd
+
+        template = _fold_template(req)
         parts = [delayed(_partition_moments, pure=True)(p, **part_kw) for p in self._obj.to_delayed()]
         k = max(int(split_every or SPLIT_EVERY), 2)
         while len(parts) > 1:
             parts = [delayed(_merge_partitions, pure=True)(*parts[i : i + k])
                      for i in range(0, len(parts), k)]
-        return delayed(_fold_finish, pure=True)(parts[0], req)
+        result = delayed(_fold_finish, pure=True)(parts[0], req)
+        return dd.from_delayed([result], meta=template, verify_meta=False)
 
 
 class LogstatsDaskSeriesAccessor(_DaskFrameBase):
@@ -476,6 +608,45 @@ class LogstatsDaskSeriesAccessor(_DaskFrameBase):
         if not isinstance(obj, dd.Series):
             raise AttributeError("the logstats dask Series accessor needs a dask Series")
         self._obj = obj
+
+    def _with_keys(self, by: Any) -> tuple[Any, list[str], list[Any]]:
+        import dask.dataframe as dd
+
+        name = self._obj.name if self._obj.name is not None else "value"
+        frame = self._obj.to_frame(name=name)
+        key_cols: list[str] = []
+        key_names: list[Any] = []
+        for i, key in enumerate([] if by is None else by if isinstance(by, list) else [by]):
+            if not isinstance(key, dd.Series):
+                raise TypeError("by= on a dask Series takes dask Series (or a list of them) aligned "
+                                f"with it, not {type(key).__name__}")
+            col = f"__logstats_key_{i}"
+            frame = frame.assign(**{col: key})
+            key_cols.append(col)
+            key_names.append(key.name)
+        return frame, key_cols, key_names
+
+    def _loaded(self, name: str, args: dict[str, Any]) -> Any:
+        frame, key_cols, key_names = self._with_keys(args.get("by"))
+        value = self._obj.name if self._obj.name is not None else "value"
+        series_name = self._obj.name
+        call_args = {k: v for k, v in args.items() if k not in ("by", "columns")}
+        has_by = bool(key_cols)
+
+        def accessor(pdf: Any) -> Any:
+            s = pdf[value].rename(series_name)
+            extra = {"by": [pdf[c].rename(n) for c, n in zip(key_cols, key_names)]} if has_by else {}
+            return s.logstats, extra
+
+        import dask.dataframe as dd
+        from dask import delayed
+
+        call_args.pop("split_every", None)
+        template = _template(lambda pdf: _call_pandas(accessor, pdf, name, call_args), frame)
+        result = delayed(_load_and_call, pure=True)(accessor, name, call_args, *frame.to_delayed())
+        if template is None or np.isscalar(template):
+            return result
+        return dd.from_delayed([result], meta=template, verify_meta=False)
 
     def _reduce(self, kind: str, by: Any, columns: Any, **kw: Any) -> Any:
         import dask.dataframe as dd

@@ -7,18 +7,28 @@ with the group labels. A Series is handled as a one-column frame, so both share 
 
 from __future__ import annotations
 
-import functools
-from collections.abc import Callable, Hashable
+from collections.abc import Hashable
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from logstats.accessors._engine import INT_FIELDS, finalize, grouped_method, stacked_moments
-from logstats.accessors._engine import fold_change as engine_fold_change
+from logstats.accessors._api import install
+from logstats.accessors._engine import compare, compute, warn_if_empty
 from logstats.accessors._face import FigureMethods
-from logstats.accessors._labels import Groups, column_values, factorize_keys, resolve_keys, value_columns
+from logstats.accessors._labels import (
+    Groups,
+    column_values,
+    factorize_keys,
+    is_label_of,
+    nested_codes,
+    nested_levels,
+    resolve_keys,
+    resolve_limit,
+    value_columns,
+)
 from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
+from logstats.methods import INT_FIELDS, METHODS, Policy, resolve
 
 __all__ = ["LogstatsFrameAccessor", "LogstatsSeriesAccessor"]
 
@@ -52,7 +62,7 @@ class _PandasBase(FigureMethods):
     def _setup(self, by: Any, columns: Any, observed: bool, dropna: bool, sort: bool,
                other_keys: tuple[Any, ...] = ()) -> tuple[pd.DataFrame, list[Hashable], Groups | None]:
         df = self._frame()
-        others = [k for k in other_keys if isinstance(k, str) and k in df.columns]
+        others = [k for k in other_keys if is_label_of(df, k)]
         if by is None:
             cols = value_columns(df, columns, exclude=others)
             return df, cols, None
@@ -62,44 +72,13 @@ class _PandasBase(FigureMethods):
         groups = factorize_keys(keys, observed=observed, dropna=dropna, sort=sort)
         return df, cols, groups
 
-    def _moment_reduce(self, kind: str, by: Any, columns: Any, *, skipna: bool, nonpositive: str,
-                       observed: bool, dropna: bool, sort: bool, params: dict[str, Any] | None = None,
-                       setup: tuple[pd.DataFrame, list[Hashable], Groups | None] | None = None
-                       ) -> tuple[list[tuple[Hashable, np.ndarray]], tuple[str, ...], Groups | None]:
-        check_nonpositive(nonpositive)
-        df, cols, groups = setup if setup is not None else self._setup(by, columns, observed, dropna, sort)
-        results = []
-        names: tuple[str, ...] = ()
-        for col in cols:
-            x = column_values(df[col], col)
-            if groups is None:
-                st = stacked_moments(x, nred=1, where=_where(col))
-                labels = None
-            else:
-                st = stacked_moments(x, nred=1, codes=groups.codes, ngroups=groups.ngroups,
-                                     where=_where(col))
-                labels = groups.labels
-            arr, names = finalize(st, kind=kind, skipna=skipna, nonpositive=nonpositive,
-                                  where=_where(col), labels=labels, params=params)
-            results.append((col, arr))
-        return results, names, groups
-
-    def _per_column(self, fn: Callable[..., dict[str, np.ndarray]], df: pd.DataFrame, cols: list[Hashable],
-                    groups: Groups | None, **kw: Any) -> pd.DataFrame | pd.Series:
-        """Run ``fn(values, codes, ngroups, where=, labels=, **kw)`` column by column; tidy result."""
-        codes = groups.codes if groups is not None else np.zeros(len(df), dtype=np.intp)
-        ngroups = groups.ngroups if groups is not None else 1
-        labels = groups.labels if groups is not None else None
-        results = [(col, fn(column_values(df[col], col), codes, ngroups, where=_where(col), labels=labels,
-                            **kw)) for col in cols]
-        return self._tidy(results, groups)
-
     def _tidy(self, results: list[tuple[Hashable, dict[str, np.ndarray]]], groups: Groups | None
               ) -> pd.DataFrame | pd.Series:
         if groups is None:
-            rows = {col: {k: np.asarray(v).reshape(-1)[0] for k, v in f.items()} for col, f in results}
-            out = pd.DataFrame.from_dict(rows, orient="index")
-            out.index.name = "variable"
+            index = pd.Index([c for c, _ in results], name="variable", tupleize_cols=False)
+            names = list(results[0][1]) if results else []
+            out = pd.DataFrame({k: [np.asarray(f[k]).reshape(-1)[0] for _, f in results] for k in names},
+                               index=index)
             for k in out.columns:
                 if k in INT_FIELDS:
                     out[k] = _maybe_int(out[k])
@@ -113,196 +92,83 @@ class _PandasBase(FigureMethods):
             return frames[0]
         return pd.concat(frames, keys=[c for c, _ in results], names=["variable"]).pipe(_variable_last)
 
-    def _stacked_to_tidy(self, results: list[tuple[Hashable, np.ndarray]], names: tuple[str, ...],
-                         groups: Groups | None) -> pd.DataFrame | pd.Series:
-        return self._tidy([(c, {k: a[..., i] for i, k in enumerate(names)}) for c, a in results], groups)
-
-    def _single(self, kind: str, by: Any, columns: Any, **kw: Any) -> Any:
-        results, names, groups = self._moment_reduce(kind, by, columns, **kw)
-        if groups is None:
-            values = {c: float(a[0]) for c, a in results}
-            if self._is_series():
-                return next(iter(values.values()))
-            s = pd.Series(values, name=kind)
-            s.index.name = "variable"
-            return s
-        data = {c: a[:, 0] for c, a in results}
-        if self._is_series():
-            return pd.Series(next(iter(data.values())), index=groups.index, name=self._obj.name)
-        out = pd.DataFrame(data, index=groups.index)
-        out.columns.name = None
-        return out
-
-    # ------------------------------------------------------------------ public methods
-    def gmean(self, by: Any = None, *, columns: Any = None, skipna: bool = True,
-              nonpositive: str = "raise", observed: bool = True, dropna: bool = True,
-              sort: bool = True) -> Any:
-        """Geometric mean ``exp(mean(ln x))``, per column and per group of ``by``.
-
-        Parameters
-        ----------
-        by : column name, list of names, or aligned Series, optional
-            Group keys, as in ``DataFrame.groupby`` (``observed``, ``dropna``, ``sort`` likewise).
-        columns : name or list, optional
-            Value columns; default all numeric, non-boolean columns not used in ``by``.
-        skipna : bool, default True
-            Skip missing values (counted in ``summary()``); False makes a group with any NaN.
-        nonpositive : {"raise", "drop", "nan"}
-            Zeros, negatives and ``-inf``: refuse, exclude (counted), or make the group's result NaN.
-
-        Returns
-        -------
-        float (Series without ``by``), Series (DataFrame without ``by``, or Series with ``by``),
-        or DataFrame (groups x columns).
-
-        Examples
-        --------
-        >>> import pandas as pd, logstats
-        >>> pd.Series([1.0, 10.0, 100.0]).logstats.gmean()
-        10.000000000000002
-        """
-        return self._single("gmean", by, columns, skipna=skipna, nonpositive=nonpositive,
-                            observed=observed, dropna=dropna, sort=sort)
-
-    def gsd(self, by: Any = None, *, columns: Any = None, ddof: float = 1, skipna: bool = True,
-            nonpositive: str = "raise", observed: bool = True, dropna: bool = True,
-            sort: bool = True) -> Any:
-        """Geometric standard deviation ``exp(sd(ln x))`` with ``ddof=1`` (as ``scipy.stats.gstd``).
-
-        Same arguments and shapes as :meth:`gmean`; dimensionless, at least 1.
-        """
-        return self._single("gsd", by, columns, skipna=skipna, nonpositive=nonpositive,
-                            observed=observed, dropna=dropna, sort=sort, params={"ddof": ddof})
-
-    def gcv(self, by: Any = None, *, columns: Any = None, ddof: float = 1, skipna: bool = True,
-            nonpositive: str = "raise", observed: bool = True, dropna: bool = True,
-            sort: bool = True) -> Any:
-        """Geometric coefficient of variation ``sqrt(exp(s²) − 1)``, s the SD of ln x with ``ddof=1``."""
-        return self._single("gcv", by, columns, skipna=skipna, nonpositive=nonpositive,
-                            observed=observed, dropna=dropna, sort=sort, params={"ddof": ddof})
-
-    def moments(self, by: Any = None, *, columns: Any = None, skipna: bool = True,
-                nonpositive: str = "raise", observed: bool = True, dropna: bool = True,
-                sort: bool = True) -> Any:
-        """Sufficient statistics of the logs: ``n, mean_log, m2_log, n_missing, n_nonpositive, n_censored``.
-
-        ``m2_log`` is the sum of squared deviations of ln x. Results of the same shape merge exactly
-        with :func:`logstats.combine_moments` (e.g. tables of several plates summarised separately).
-        """
-        results, names, groups = self._moment_reduce(
-            "moments", by, columns, skipna=skipna, nonpositive=nonpositive, observed=observed,
-            dropna=dropna, sort=sort)
-        return self._stacked_to_tidy(results, names, groups)
-
-    def summary(self, by: Any = None, *, columns: Any = None, confidence_level: float = 0.95,
-                ddof: float = 1, skipna: bool = True, nonpositive: str = "raise", linear: bool = False,
-                observed: bool = True, dropna: bool = True, sort: bool = True) -> Any:
-        """Log-scale summary: ``n, n_missing, n_nonpositive, gmean, gsd, gcv, ci_low, ci_high, ci_factor``.
-
-        ``ci_low``/``ci_high`` is the t interval of the geometric mean, ``exp(ȳ ± t·s/√n)``, and
-        ``ci_factor`` its ×/÷ half-width; ``gsd``/``gcv`` use ``ddof`` (default 1). With
-        ``linear=True`` the linear-scale ``median``, ``mean`` and ``sd`` (ddof) of the same values are
-        added (the median costs a sort, so it is off by default).
-
-        Examples
-        --------
-        >>> import pandas as pd, logstats
-        >>> df = pd.DataFrame({"arm": ["a", "a", "b", "b"], "x": [1.0, 4.0, 2.0, 8.0]})
-        >>> df.logstats.summary(by="arm")[["n", "gmean", "gsd"]].round(3)
-             n  gmean    gsd
-        arm
-        a    2    2.0  2.665
-        b    2    4.0  2.665
-        """
-        setup = self._setup(by, columns, observed, dropna, sort)  # keys factorised once for both parts
-        results, names, groups = self._moment_reduce(
-            "summary", by, columns, skipna=skipna, nonpositive=nonpositive, observed=observed,
-            dropna=dropna, sort=sort, params={"confidence_level": confidence_level, "ddof": ddof},
-            setup=setup)
-        out = self._stacked_to_tidy(results, names, groups)
-        if linear:
-            from logstats.stats.estimate import linear_fields
-
-            lin = self._per_column(linear_fields, *setup, ddof=ddof, skipna=skipna, nonpositive=nonpositive)
-            if isinstance(out, pd.Series):
-                out = pd.concat([out, lin])
+    # ------------------------------------------------------------------ the declared statistics
+    def _statistic(self, name: str, args: dict[str, Any]) -> Any:
+        """Every declared statistic: keys to codes, each value column through the engine, rewrap."""
+        md = METHODS[name]
+        if md.expand is not None and isinstance(args.get(md.expand), (list, tuple, np.ndarray, pd.Index)):
+            items = list(args[md.expand])
+            if not items:
+                raise ValueError(f"{md.expand}= is an empty list")
+            parts = [self._statistic(name, {**args, md.expand: item}) for item in items]
+            if isinstance(parts[0], pd.Series):  # a Series accessor without by: one row per item
+                out = pd.DataFrame(parts, index=pd.Index(items, name=md.expand))
+                for k in out.columns:
+                    if k in INT_FIELDS:
+                        out[k] = _maybe_int(out[k])
+                return out
+            out = pd.concat(parts, keys=items, names=[md.expand])
+            if out.index.nlevels == 1:
+                return out
+            rows = len(parts[0])  # each group's rows together, the items inside (as in groupby.quantile)
+            order = np.arange(rows * len(items)).reshape(len(items), rows).T.ravel()
+            return out.reorder_levels(list(range(1, out.index.nlevels)) + [0]).iloc[order]
+        limit = args.pop("detection_limit", None)
+        policy_kw = {"skipna": args.pop("skipna"), "nonpositive": args.pop("nonpositive")}
+        by, columns = args.pop("by"), args.pop("columns")
+        observed, dropna, sort = args.pop("observed"), args.pop("dropna"), args.pop("sort")
+        frame = self._frame()
+        nested = None
+        if "nested" in args:  # nesting levels: label handling here, codes to the engine
+            nested = nested_levels(args.pop("nested"))
+            missing = [k for k in nested if not is_label_of(frame, k)]
+            if missing:
+                raise KeyError(f"nested={missing!r} are not columns; there are {list(frame.columns)!r}")
+        aligned = [limit] + [args.get(p) for p in md.row_params] + (nested or [])
+        keys = tuple(k for k in aligned if is_label_of(frame, k))
+        df, cols, groups = self._setup(by, columns, observed, dropna, sort, other_keys=keys)
+        policy = Policy(detection_limit=resolve_limit(df, limit), **policy_kw)
+        for p in md.row_params:
+            if p == "nested_codes":
+                args[p] = nested_codes(df[nested]) if nested is not None else None
+                args["names"] = [str(k) for k in (nested or [])]
             else:
-                out = out.join(lin)
+                args[p] = resolve_limit(df, args.get(p), keyword=p)
+        results = []
+        for col in cols:
+            out = compute(md, column_values(df[col], col), nred=1,
+                          codes=groups.codes if groups is not None else None,
+                          ngroups=groups.ngroups if groups is not None else None, policy=policy,
+                          params=args, where=_where(col),
+                          labels=groups.labels if groups is not None else None)
+            results.append((col, out))
+        if md.shape == "single":
+            return self._single_shape(name, results, groups)
+        if resolve(md, args).pools_groups:  # one row for all groups together
+            return self._tidy(results, None)
+        return self._tidy(results, groups)
+
+    def _single_shape(self, name: str, results: list[tuple[Hashable, dict[str, np.ndarray]]],
+                      groups: Groups | None) -> Any:
+        if groups is None:
+            values = [float(np.asarray(f[name]).reshape(-1)[0]) for _, f in results]
+            if self._is_series():
+                return values[0]
+            index = pd.Index([c for c, _ in results], name="variable", tupleize_cols=False)
+            return pd.Series(values, index=index, name=name, dtype=np.float64)
+        data = [np.asarray(f[name]) for _, f in results]
+        if self._is_series():
+            return pd.Series(data[0], index=groups.index, name=self._obj.name)
+        out = pd.DataFrame(dict(enumerate(data)), index=groups.index)
+        out.columns = pd.Index([c for c, _ in results], tupleize_cols=False)
         return out
-
-    def fit(self, by: Any = None, *, columns: Any = None, detection_limit: Any = None,
-            skipna: bool = True, nonpositive: str = "raise", max_iter: int = 100, tol: float = 1e-10,
-            observed: bool = True, dropna: bool = True, sort: bool = True) -> Any:
-        """Log-normal maximum-likelihood fit per group, left-censored at a detection limit.
-
-        Columns ``mu``, ``sigma`` (MLE of the mean and SD of ln x, so ``ddof=0``), ``n`` (values in the
-        fit, censored included), ``n_censored``, ``loglik`` (on the original scale), ``converged``,
-        then ``se_mu``, ``se_sigma``, ``n_iter``, ``n_missing``, ``n_nonpositive`` and ``status``
-        (``"closed_form"``, ``"ok"``, ``"all_censored"``, ``"too_few_detects"``, ...).
-
-        ``detection_limit`` is a number or the name of a column (or an aligned Series) holding each
-        row's limit; a value **at or below** its limit is censored, zeros and negatives included (the
-        ``nonpositive`` policy then does not apply to them). Censored groups are fitted all at once by
-        Newton's method with step halving (see :func:`logstats.stats.censored.fit_lognormal`); a wholly
-        censored group gets NaN with its status, never a number.
-        """
-        limit_col = detection_limit if isinstance(detection_limit, str) else None
-        df, cols, groups = self._setup(by, columns, observed, dropna, sort,
-                                       other_keys=(limit_col,) if limit_col else ())
-        if limit_col is not None:
-            if limit_col not in df.columns:
-                raise KeyError(f"detection_limit={limit_col!r} is not a column; "
-                               f"there are {list(df.columns)!r}")
-            limit: Any = column_values(df[limit_col], limit_col)
-        elif isinstance(detection_limit, pd.Series):
-            limit = column_values(detection_limit.reindex(df.index), detection_limit.name)
-        else:
-            limit = detection_limit
-        return self._raw_method("fit", df, cols, groups, skipna=skipna, nonpositive=nonpositive,
-                                detection_limit=limit, max_iter=max_iter, tol=tol)
-
-    def scale_check(self, by: Any = None, *, columns: Any = None, skipna: bool = True,
-                    nonpositive: str = "raise", observed: bool = True, dropna: bool = True,
-                    sort: bool = True) -> Any:
-        """Linear or log scale? Normal and log-normal fitted to the same values, per group.
-
-        ``aic_normal`` and ``aic_lognormal`` are both for the data on the original scale (the
-        log-normal likelihood includes the Jacobian −Σ ln x), ``preferred`` is ``"log"`` when the
-        log-normal has the lower AIC; ``normality_p_linear`` / ``normality_p_log`` are Shapiro–Wilk
-        p-values (D'Agostino–Pearson beyond 5000 values, named in ``normality_test``); ``mean``,
-        ``gmean``, ``mean_ratio`` = mean / gmean and ``expected_ratio`` = exp(s²/2) (s with ddof=1),
-        the ratio log-normality predicts; plus skewness on both scales.
-        """
-        df, cols, groups = self._setup(by, columns, observed, dropna, sort)
-        return self._raw_method("scale_check", df, cols, groups, skipna=skipna, nonpositive=nonpositive)
-
-    def lognormal_mean(self, by: Any = None, *, columns: Any = None, method: str = "cox",
-                       confidence_level: float = 0.95, random_state: Any = None, n_draws: int = 10000,
-                       skipna: bool = True, nonpositive: str = "raise", observed: bool = True,
-                       dropna: bool = True, sort: bool = True) -> Any:
-        """Arithmetic mean implied by a log-normal, ``exp(ȳ + s²/2)`` (s with ddof=1), with a CI.
-
-        ``method``: ``"cox"`` (Land 1972; Zhou & Gao 1997), ``"modified_cox"`` (t quantile;
-        Armstrong 1992, Olsson 2005), ``"gci"`` (generalized CI, Krishnamoorthy & Mathew 2003; Monte
-        Carlo with ``n_draws``) or ``"bootstrap"`` (BCa). The Monte Carlo methods are reproducible for a
-        given ``random_state`` and never touch numpy's global random state. Columns ``estimate``,
-        ``ci_low``, ``ci_high``, ``method``, ``n``, ``n_missing``, ``n_nonpositive``.
-        """
-        df, cols, groups = self._setup(by, columns, observed, dropna, sort)
-        return self._raw_method("lognormal_mean", df, cols, groups, skipna=skipna, nonpositive=nonpositive,
-                                method=method, confidence_level=confidence_level, random_state=random_state,
-                                n_draws=n_draws)
-
-    def _raw_method(self, kind: str, df: pd.DataFrame, cols: list[Hashable], groups: Groups | None,
-                    **kw: Any) -> Any:
-        return self._per_column(functools.partial(grouped_method, kind), df, cols, groups, **kw)
 
     def fold_change(self, by: Any, reference: Any, *, columns: Any = None, replicate: Any = None,
                     paired: bool = False, within: Any = None, equal_var: bool = False,
                     confidence_level: float = 0.95, adjust: str | None = "holm",
                     equivalence: tuple[float, float] | None = None, equivalence_alpha: float = 0.05,
-                    skipna: bool = True, nonpositive: str = "raise", observed: bool = True,
-                    dropna: bool = True) -> pd.DataFrame:
+                    detection_limit: Any = None, skipna: bool = True, nonpositive: str = "raise",
+                    observed: bool = True, dropna: bool = True) -> pd.DataFrame:
         """Ratio of geometric means of every level of ``by`` against ``reference``, with t interval.
 
         One row per (``within`` stratum, level other than the reference[, value column]): ``ratio``
@@ -318,6 +184,14 @@ class _PandasBase(FigureMethods):
         ``n_reference`` then count replicates and ``n_cells``/``n_cells_reference`` the values
         (Lord et al. 2020). ``paired=True`` pairs a level's replicate with the reference replicate of
         the same label and tests the differences (unmatched ones are counted in ``n_unpaired``).
+        Values left out are counted for the level (``n_missing``, ``n_nonpositive``) and for the
+        reference (``n_missing_reference``, ``n_nonpositive_reference``). ``unit`` says what a unit is.
+
+        With ``detection_limit`` (a number, a column label or an aligned array) the logs are fitted by
+        a censored normal regression with one location per level and a common spread: ``ratio`` is
+        exp(level effect), the interval a Wald interval and ``p_value`` a likelihood-ratio test.
+
+        A comparison that gives no number at all says why in a :class:`logstats.LogstatsWarning`.
 
         Examples
         --------
@@ -331,7 +205,11 @@ class _PandasBase(FigureMethods):
             raise ValueError("fold_change needs by= (the column whose levels are compared)")
         others = tuple(k for key in (replicate, within) if key is not None
                        for k in (key if isinstance(key, list) else [key]))
+        if is_label_of(self._frame(), detection_limit):
+            others += (detection_limit,)
         df, cols, groups = self._setup(by, columns, observed, dropna, sort=True, other_keys=others)
+        policy = Policy(skipna=skipna, nonpositive=nonpositive,
+                        detection_limit=resolve_limit(df, detection_limit))
         assert groups is not None
         if len(groups.names) != 1:
             raise ValueError("fold_change takes one by= key; use within= for further stratification")
@@ -352,14 +230,17 @@ class _PandasBase(FigureMethods):
             sg = factorize_keys(resolve_keys(self._obj, within), observed=observed, dropna=dropna,
                                 sort=True)
             strat_codes, n_strata, strata_index = sg.codes, sg.ngroups, sg.index
+        params = dict(paired=paired, equal_var=equal_var, confidence_level=confidence_level, adjust=adjust,
+                      equivalence=equivalence, equivalence_alpha=equivalence_alpha)
         results = []
         for col in cols:
-            results.append((col, engine_fold_change(
-                column_values(df[col], col), groups.codes, groups.ngroups, ref, labels=levels,
-                where=_where(col), nonpositive=nonpositive, skipna=skipna, stratum_codes=strat_codes,
-                n_strata=n_strata, replicate_codes=rep_codes, n_replicates=n_rep, paired=paired,
-                equal_var=equal_var, confidence_level=confidence_level, adjust=adjust,
-                equivalence=equivalence, equivalence_alpha=equivalence_alpha)))
+            res = compare(column_values(df[col], col), groups.codes, groups.ngroups, ref, policy=policy,
+                          labels=levels, where=_where(col), stratum_codes=strat_codes, n_strata=n_strata,
+                          replicate_codes=rep_codes, n_replicates=n_rep, params=params)
+            keep = [i for i in range(groups.ngroups) if i != ref]
+            warn_if_empty(res["ratio"][:, keep], reference=reference, where=_where(col), paired=paired,
+                          n=res["n"][:, keep], n_reference=res["n_reference"][:, keep], stacklevel=3)
+            results.append((col, res))
         return fold_change_frame(results, groups.index, ref, strata_index,
                                  "replicate" if replicate is not None else "value")
 
@@ -435,6 +316,9 @@ def _maybe_int(s: pd.Series) -> pd.Series:
 def _variable_last(df: pd.DataFrame) -> pd.DataFrame:
     n = df.index.nlevels
     return df.reorder_levels(list(range(1, n)) + [0])
+
+
+install(_PandasBase, "pandas")
 
 
 @pd.api.extensions.register_dataframe_accessor("logstats")

@@ -8,31 +8,22 @@ are rewrapped with the remaining coords. Dask-backed variables stay lazy.
 from __future__ import annotations
 
 import re
-from collections.abc import Callable, Hashable, Sequence
+from collections.abc import Callable, Hashable
 from typing import Any
 
 import numpy as np
 import pandas as pd
 import xarray as xr
 
-from logstats.accessors._engine import (
-    CLOSED_FIT_STATUS,
-    INT_FIELDS,
-    finalize,
-    is_dask,
-    raw_reduce,
-    stacked_moments,
-)
-from logstats.accessors._engine import (
-    fold_change as engine_fold_change,
-)
+from logstats.accessors._api import install
+from logstats.accessors._engine import compare, compute, is_dask, warn_if_empty
 from logstats.accessors._face import FigureMethods
+from logstats.accessors._labels import nested_codes, nested_levels
 from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
+from logstats.methods import METHODS, Method, Policy, resolve
 
 __all__ = ["LogstatsArrayAccessor", "LogstatsDatasetAccessor"]
 
-#: Result fields that carry the data's units (the others are counts or dimensionless).
-UNIT_FIELDS = frozenset({"gmean", "ci_low", "ci_high", "median", "mean", "sd", "estimate"})
 _LOG_UNITS = re.compile(r"^log(?:_(?P<b>e|2|10))?\((?P<u>.*)\)$")
 
 
@@ -103,66 +94,49 @@ class Plan:
         return out
 
 
-def _reduce_array(da: xr.DataArray, name: Hashable, kind: str, dim: Any, by: Hashable | None, *,
-                  skipna: bool, nonpositive: str, keep_attrs: bool, params: dict[str, Any] | None
-                  ) -> xr.Dataset:
-    """One variable through the engine: a Dataset with one variable per result field."""
-    _check_value(da, name)
-    check_nonpositive(nonpositive)
-    plan = Plan(da, dim, by)
-    data = da.transpose(*plan.kept, *plan.reduced).data
-    st = stacked_moments(data, nred=len(plan.reduced), codes=plan.codes,
-                         ngroups=len(plan.labels) if plan.labels is not None else None, where=_where(name))
-    arr, names = finalize(st, kind=kind, skipna=skipna, nonpositive=nonpositive, where=_where(name),
-                          labels=plan.labels, params=params)
-    return _wrap(arr, names, plan, da, keep_attrs)
+def _limit_for(source: Any, da: xr.DataArray, detection_limit: Any, plan: Plan,
+               keyword: str = "detection_limit") -> Any:
+    """``detection_limit=`` laid out like the data the engine sees (kept dims, then reduced dims)."""
+    if detection_limit is None:
+        return None
+    if isinstance(detection_limit, (int, float, np.integer, np.floating)) and not isinstance(
+            detection_limit, (bool, np.bool_)) and not _names_variable(source, detection_limit):
+        return float(detection_limit)
+    if _names_variable(source, detection_limit):
+        limit = source[detection_limit]
+    elif isinstance(detection_limit, xr.DataArray):
+        limit = detection_limit
+    elif isinstance(detection_limit, np.ndarray):
+        if detection_limit.shape != da.shape:
+            raise ValueError(f"{keyword}= array has shape {detection_limit.shape}; the data has "
+                             f"{da.shape} (dims {da.dims}); pass a DataArray to broadcast by dim name")
+        limit = xr.DataArray(detection_limit, dims=da.dims)
+    else:
+        raise KeyError(f"{keyword}={detection_limit!r} is not a coordinate or variable")
+    limit = xr.broadcast(limit, da)[0]
+    return np.asarray(limit.transpose(*plan.kept, *plan.reduced).to_numpy(), dtype=np.float64)
 
 
-def _wrap(arr: Any, names: Sequence[str], plan: Plan, da: xr.DataArray, keep_attrs: bool) -> xr.Dataset:
+def _names_variable(source: Any, key: Any) -> bool:
+    try:
+        return key in source.coords or (isinstance(source, xr.Dataset) and key in source.data_vars)
+    except TypeError:
+        return False
+
+
+def _wrap(out: dict[str, Any], method: Method, plan: Plan, da: xr.DataArray, keep_attrs: bool,
+          pooled: bool = False) -> xr.Dataset:
     coords = plan.coords(da)
     dims = plan.out_dims()
-    out = {}
-    for i, k in enumerate(names):
-        v = arr[..., i]
-        if k in INT_FIELDS:
-            v = v.astype(np.int64)
-        attrs: dict[Any, Any] = {}
-        if keep_attrs and k in UNIT_FIELDS:
-            attrs = dict(da.attrs)
-        out[k] = xr.DataArray(v, dims=dims, coords=coords, attrs=attrs)
-    if "converged" in out:
-        out["converged"] = out["converged"].astype(bool)
-    if "status" in out:
-        out["status"] = xr.apply_ufunc(_status_names, out["status"], dask="parallelized",
-                                       output_dtypes=[object])
-    return xr.Dataset(out)
-
-
-def _status_names(codes: np.ndarray) -> np.ndarray:
-    return np.asarray(CLOSED_FIT_STATUS, dtype=object)[np.asarray(codes).astype(np.intp)]
-
-
-def _raw_array(kind: str, da: xr.DataArray, name: Hashable, dim: Any, by: Hashable | None, *,
-               skipna: bool, nonpositive: str, **kw: Any) -> xr.Dataset:
-    """Raw-value methods along ``dim`` (the data are loaded): the engine's one flat pass, rewrapped."""
-    _check_value(da, name)
-    plan = Plan(da, dim, by)
-    data = np.asarray(da.transpose(*plan.kept, *plan.reduced).to_numpy(), dtype=np.float64)
-    data = data.reshape(data.shape[: len(plan.kept)] + (-1,))
-    limit = kw.pop("detection_limit", None)
-    if isinstance(limit, xr.DataArray):
-        limit = np.asarray(limit.transpose(*plan.kept, *plan.reduced).to_numpy(), dtype=np.float64)
-        limit = limit.reshape(data.shape)
-    ngroups = len(plan.labels) if plan.labels is not None else None
-    res = raw_reduce(kind, data, codes=plan.codes, ngroups=ngroups,
-                     where=_where(name), labels=plan.labels, nonpositive=nonpositive, skipna=skipna,
-                     detection_limit=limit, **kw)
-    coords = plan.coords(da)
-    out = {}
-    for k, arr in res.items():
-        attrs = dict(da.attrs) if k in UNIT_FIELDS else {}
-        out[k] = xr.DataArray(arr, dims=plan.out_dims(), coords=coords, attrs=attrs)
-    return xr.Dataset(out)
+    if pooled:  # one result for all groups of ``by`` together
+        dims = list(plan.kept)
+        coords = {k: v for k, v in coords.items() if k != plan.by}
+    res = {}
+    unit_fields = method.unit_fields
+    for k, v in out.items():
+        attrs = dict(da.attrs) if keep_attrs and k in unit_fields else {}
+        res[k] = xr.DataArray(v, dims=dims, coords=coords, attrs=attrs)
+    return xr.Dataset(res)
 
 
 class _XarrayBase(FigureMethods):
@@ -184,123 +158,63 @@ class _XarrayBase(FigureMethods):
         return xr.concat([p for _, p in parts], dim=variable,
                          coords="minimal", compat="override", join="outer")
 
-    def _single(self, kind: str, dim: Any, by: Any, keep_attrs: bool, **kw: Any) -> Any:
-        parts = self._each(lambda da, name: _reduce_array(da, name, kind, dim, by, keep_attrs=keep_attrs,
-                                                          **kw))
-        if self._is_array():
-            out = parts[0][1][kind]
-            out.name = self._obj.name
-            return out
-        return xr.Dataset({name: ds[kind] for name, ds in parts})
-
-    def _fields(self, kind: str, dim: Any, by: Any, keep_attrs: bool, **kw: Any) -> xr.Dataset:
-        return self._tidy(self._each(
-            lambda da, name: _reduce_array(da, name, kind, dim, by, keep_attrs=keep_attrs, **kw)))
-
-    # ------------------------------------------------------------------ public methods
-    def gmean(self, dim: Any = None, *, by: Hashable | None = None, skipna: bool = True,
-              nonpositive: str = "raise", keep_attrs: bool = True) -> Any:
-        """Geometric mean along ``dim`` (name, list, or None for all), per group of coordinate ``by``.
-
-        Keeps ``attrs`` (units) with ``keep_attrs=True``. Lazy for dask-backed data.
-
-        Examples
-        --------
-        >>> import xarray as xr, logstats
-        >>> xr.DataArray([1.0, 10.0, 100.0], dims="cell").logstats.gmean("cell").item()
-        10.000000000000002
-        """
-        return self._single("gmean", dim, by, keep_attrs, skipna=skipna, nonpositive=nonpositive,
-                            params=None)
-
-    def gsd(self, dim: Any = None, *, by: Hashable | None = None, ddof: float = 1, skipna: bool = True,
-            nonpositive: str = "raise", keep_attrs: bool = True) -> Any:
-        """Geometric standard deviation ``exp(sd(ln x))`` along ``dim``, ``ddof=1``; dimensionless."""
-        return self._single("gsd", dim, by, keep_attrs, skipna=skipna, nonpositive=nonpositive,
-                            params={"ddof": ddof})
-
-    def gcv(self, dim: Any = None, *, by: Hashable | None = None, ddof: float = 1, skipna: bool = True,
-            nonpositive: str = "raise", keep_attrs: bool = True) -> Any:
-        """Geometric coefficient of variation ``sqrt(exp(s²) − 1)`` along ``dim``, ``ddof=1``."""
-        return self._single("gcv", dim, by, keep_attrs, skipna=skipna, nonpositive=nonpositive,
-                            params={"ddof": ddof})
-
-    def moments(self, dim: Any = None, *, by: Hashable | None = None, skipna: bool = True,
-                nonpositive: str = "raise") -> xr.Dataset:
-        """Sufficient statistics of the logs along ``dim`` (``n, mean_log, m2_log`` and the counts)."""
-        return self._fields("moments", dim, by, False, skipna=skipna, nonpositive=nonpositive, params=None)
-
-    def summary(self, dim: Any = None, *, by: Hashable | None = None, confidence_level: float = 0.95,
-                ddof: float = 1, skipna: bool = True, nonpositive: str = "raise",
-                keep_attrs: bool = True) -> xr.Dataset:
-        """Log-scale summary along ``dim``: ``n, n_missing, n_nonpositive, gmean, gsd, gcv, ci_low,
-        ci_high, ci_factor`` (t interval of the geometric mean; ``ddof=1`` for the spreads).
-
-        A Dataset with several numeric variables gains a ``variable`` dim. Lazy for dask-backed data;
-        chunks along ``dim`` are reduced separately and merged, never rechunked.
-        """
-        return self._fields("summary", dim, by, keep_attrs, skipna=skipna, nonpositive=nonpositive,
-                            params={"confidence_level": confidence_level, "ddof": ddof})
-
-    def fit(self, dim: Any = None, *, by: Hashable | None = None, detection_limit: Any = None,
-            skipna: bool = True, nonpositive: str = "raise", max_iter: int = 100,
-            tol: float = 1e-10) -> xr.Dataset:
-        """Log-normal MLE (``mu``, ``sigma`` with ddof=0, ``n``, ``n_censored``, ``loglik``,
-        ``converged``, ...) along ``dim``, per group of coordinate ``by``, as the pandas ``fit``.
-
-        ``detection_limit`` is a number or the name of a coordinate (DataArray) or variable (Dataset)
-        broadcastable against the data. Every position of the other dims is fitted in the same
-        vectorised pass. Without a detection limit the fit is the closed form from the log-moments,
-        so dask-backed data stay lazy; with one, dask-backed data are loaded (the censored likelihood
-        needs every value).
-        """
-        if detection_limit is None:
-            return self._fields("fit", dim, by, False, skipna=skipna, nonpositive=nonpositive,
-                                params={"skipna": skipna, "nonpositive": nonpositive})
-
-        def one(da: xr.DataArray, name: Hashable) -> xr.Dataset:
-            limit: Any = detection_limit
-            if isinstance(detection_limit, str):
-                source = self._obj
-                if detection_limit not in source.coords and not (
-                        isinstance(source, xr.Dataset) and detection_limit in source.data_vars):
-                    raise KeyError(f"detection_limit={detection_limit!r} is not a coordinate or variable")
-                limit = xr.broadcast(source[detection_limit], da)[0]
-            return _raw_array("fit", da, name, dim, by, skipna=skipna, nonpositive=nonpositive,
-                              detection_limit=limit, max_iter=max_iter, tol=tol)
-
-        return self._tidy(self._each(one))
-
-    def scale_check(self, dim: Any = None, *, by: Hashable | None = None, skipna: bool = True,
-                    nonpositive: str = "raise") -> xr.Dataset:
-        """Normal versus log-normal on the original scale along ``dim`` (columns as the pandas
-        ``scale_check``). Dask-backed data are loaded (Shapiro–Wilk needs sorted groups)."""
-        return self._tidy(self._each(lambda da, name: _raw_array(
-            "scale_check", da, name, dim, by, skipna=skipna, nonpositive=nonpositive)))
-
-    def lognormal_mean(self, dim: Any = None, *, by: Hashable | None = None, method: str = "cox",
-                       confidence_level: float = 0.95, random_state: Any = None, n_draws: int = 10000,
-                       skipna: bool = True, nonpositive: str = "raise") -> xr.Dataset:
-        """Arithmetic mean implied by a log-normal along ``dim`` with a CI (``"cox"``,
-        ``"modified_cox"``, ``"gci"``, ``"bootstrap"``; see the pandas ``lognormal_mean``).
-
-        All but ``"bootstrap"`` need only the log-moments, so dask-backed data stay lazy (the GCI
-        draws are made for all groups at once, from the merged moments, so a dask result equals the
-        in-memory one for the same ``random_state``); the bootstrap loads the data.
-        """
-        if method != "bootstrap":
-            out = self._fields("lognormal_mean", dim, by, True, skipna=skipna, nonpositive=nonpositive,
-                               params={"method": method, "confidence_level": confidence_level,
-                                       "random_state": random_state, "n_draws": n_draws})
-            return out.assign(method=method)
-        return self._tidy(self._each(lambda da, name: _raw_array(
-            "lognormal_mean", da, name, dim, by, skipna=skipna, nonpositive=nonpositive, method=method,
-            confidence_level=confidence_level, random_state=random_state, n_draws=n_draws)))
+    def _statistic(self, name: str, args: dict[str, Any]) -> Any:
+        """Every declared statistic: each variable through the engine along ``dim``, rewrapped."""
+        md = METHODS[name]
+        if md.expand is not None and isinstance(args.get(md.expand), (list, tuple, np.ndarray, pd.Index)):
+            items = list(args[md.expand])
+            if not items:
+                raise ValueError(f"{md.expand}= is an empty list")
+            parts = [self._statistic(name, {**args, md.expand: item}) for item in items]
+            parts = [p.drop_vars(md.expand, errors="ignore") for p in parts]
+            return xr.concat(parts, dim=pd.Index(items, name=md.expand)).transpose(..., md.expand)
+        limit = args.pop("detection_limit", None)
+        skipna, nonpositive = args.pop("skipna"), args.pop("nonpositive")
+        dim, by, keep_attrs = args.pop("dim"), args.pop("by"), args.pop("keep_attrs")
+        check_nonpositive(nonpositive)
+        parts = []
+        for vname, da in self._variables():
+            _check_value(da, vname)
+            plan = Plan(da, dim, by)
+            policy = Policy(skipna=skipna, nonpositive=nonpositive,
+                            detection_limit=_limit_for(self._obj, da, limit, plan))
+            call = dict(args)
+            nested = call.pop("nested", None) if "nested" in call else None
+            for p in md.row_params:
+                if p == "nested_codes":
+                    levels = nested_levels(nested)
+                    along = plan.reduced[0] if len(plan.reduced) == 1 else None
+                    bad = [k for k in levels if k not in da.coords or da.coords[k].dims != (along,)]
+                    if bad:
+                        raise ValueError(f"nested={bad!r} must be 1-D coordinates along the reduced dim "
+                                         f"{along!r}")
+                    frame = pd.DataFrame({i: da.coords[k].to_numpy() for i, k in enumerate(levels)})
+                    call[p] = nested_codes(frame)
+                    call["names"] = [str(k) for k in levels]
+                else:
+                    call[p] = _limit_for(self._obj, da, args.get(p), plan, keyword=p)
+            data = da.transpose(*plan.kept, *plan.reduced).data
+            out = compute(md, data, nred=len(plan.reduced), codes=plan.codes,
+                          ngroups=len(plan.labels) if plan.labels is not None else None, policy=policy,
+                          params=call, where=_where(vname), labels=plan.labels)
+            ds = _wrap(out, md, plan, da, keep_attrs, pooled=resolve(md, args).pools_groups)
+            for f in md.fields:
+                if f.constant and f.name in ds and f.name in args:  # echoes a keyword: one scalar
+                    ds[f.name] = xr.DataArray(np.asarray(args[f.name],
+                                                         dtype=object if f.dtype == "str" else None))
+            parts.append((vname, ds))
+        if md.shape == "single":
+            if self._is_array():
+                res = parts[0][1][name]
+                res.name = self._obj.name
+                return res
+            return xr.Dataset({vname: ds[name] for vname, ds in parts})
+        return self._tidy(parts)
 
     def fold_change(self, dim: Any = None, *, by: Hashable, reference: Any, replicate: Hashable | None = None,
                     paired: bool = False, equal_var: bool = False, confidence_level: float = 0.95,
                     adjust: str | None = "holm", equivalence: tuple[float, float] | None = None,
-                    equivalence_alpha: float = 0.05, skipna: bool = True,
+                    equivalence_alpha: float = 0.05, detection_limit: Any = None, skipna: bool = True,
                     nonpositive: str = "raise") -> xr.Dataset:
         """Ratio of geometric means of each level of coordinate ``by`` against ``reference`` along ``dim``.
 
@@ -309,8 +223,12 @@ class _XarrayBase(FigureMethods):
         two one-sided tests), computed separately at every position of the other dims, which are
         kept; the result has a dim named ``by`` holding the non-reference levels. Dask-backed data
         are loaded one variable at a time (the test needs every value of a group together).
+        ``detection_limit`` (a number, coordinate or variable name, or DataArray) makes it the censored
+        regression of the pandas ``fold_change``.
         """
         check_nonpositive(nonpositive)
+        params = dict(paired=paired, equal_var=equal_var, confidence_level=confidence_level, adjust=adjust,
+                      equivalence=equivalence, equivalence_alpha=equivalence_alpha)
 
         def one(da: xr.DataArray, name: Hashable) -> xr.Dataset:
             _check_value(da, name)
@@ -334,13 +252,16 @@ class _XarrayBase(FigureMethods):
             keep = [i for i in range(len(plan.labels)) if i != ref]
             # every position of the kept dims is a stratum of its own: one vectorised call for all
             rep_tiled = None if rep_codes is None else np.tile(rep_codes, rows)
-            res = engine_fold_change(
-                data.reshape(-1), np.tile(plan.codes, rows), len(plan.labels), ref, labels=plan.labels,
-                where=_where(name), nonpositive=nonpositive, skipna=skipna,
-                stratum_codes=np.repeat(np.arange(rows, dtype=np.intp), width), n_strata=rows,
-                replicate_codes=rep_tiled, n_replicates=n_rep, paired=paired, equal_var=equal_var,
-                confidence_level=confidence_level, adjust=adjust, equivalence=equivalence,
-                equivalence_alpha=equivalence_alpha)
+            lim = _limit_for(self._obj, da, detection_limit, plan)
+            policy = Policy(skipna=skipna, nonpositive=nonpositive,
+                            detection_limit=np.reshape(lim, -1) if np.ndim(lim) else lim)
+            res = compare(data.reshape(-1), np.tile(plan.codes, rows), len(plan.labels), ref, policy=policy,
+                          labels=plan.labels, where=_where(name),
+                          stratum_codes=np.repeat(np.arange(rows, dtype=np.intp), width), n_strata=rows,
+                          replicate_codes=rep_tiled, n_replicates=n_rep, params=params)
+            warn_if_empty(np.asarray(res["ratio"])[:, keep], reference=reference, where=_where(name),
+                          paired=paired, n=np.asarray(res["n"])[:, keep],
+                          n_reference=np.asarray(res["n_reference"])[:, keep], stacklevel=4)
             shape = data.shape[:-1] + (len(keep),)
             coords = plan.coords(da)
             coords[by] = plan.group_index.take(keep)
@@ -349,7 +270,11 @@ class _XarrayBase(FigureMethods):
                 if k == "log_ratio":
                     continue
                 v = np.asarray(res[k])[:, keep].reshape(shape)
+                if k == "equivalent":
+                    v = v.astype(bool)
                 out[k] = xr.DataArray(v, dims=plan.out_dims(), coords=coords)
+            out["unit"] = xr.DataArray(np.full(shape, "replicate" if replicate is not None else "value",
+                                               dtype=object), dims=plan.out_dims(), coords=coords)
             return xr.Dataset(out)
 
         return self._tidy(self._each(one))
@@ -392,6 +317,9 @@ class _XarrayBase(FigureMethods):
         for name, da in self._variables():
             ds[name] = fn(da, name)
         return ds
+
+
+install(_XarrayBase, "xarray")
 
 
 @xr.register_dataarray_accessor("logstats")

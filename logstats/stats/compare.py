@@ -749,6 +749,9 @@ def fold_change_moments(
     out["n_cells_reference"] = np.repeat(n_cells[:, ref:ref + 1], L, axis=1)
     out["n_missing"] = n_missing
     out["n_nonpositive"] = n_nonpos
+    # what the reference level left out, beside every comparison that uses it
+    out["n_missing_reference"] = np.repeat(n_missing[:, ref:ref + 1], L, axis=1)
+    out["n_nonpositive_reference"] = np.repeat(n_nonpos[:, ref:ref + 1], L, axis=1)
     out.update(extra)
     if equivalence is not None:
         out["equivalence_p"] = res["equivalence_p"]

@@ -1,5 +1,6 @@
 """The arithmetic mean implied by a log-normal fit, with confidence intervals (Cox, modified Cox,
-generalized CI, BCa bootstrap); a pure function of :class:`~logstats.core.moments.LogMoments`."""
+generalized CI, BCa bootstrap, Land's exact interval); a pure function of
+:class:`~logstats.core.moments.LogMoments`."""
 
 from __future__ import annotations
 
@@ -8,6 +9,7 @@ from typing import Any
 
 import numpy as np
 from scipy import special
+from scipy.optimize import elementwise
 
 from logstats.core.moments import LogMoments
 from logstats.core.transform import to_logs
@@ -17,7 +19,7 @@ from logstats.stats.estimate import _check_level, t_quantile
 __all__ = ["LOGNORMAL_MEAN_METHODS", "lognormal_mean"]
 
 #: Methods accepted by :func:`lognormal_mean`.
-LOGNORMAL_MEAN_METHODS: tuple[str, ...] = ("cox", "modified_cox", "gci", "bootstrap")
+LOGNORMAL_MEAN_METHODS: tuple[str, ...] = ("cox", "modified_cox", "gci", "bootstrap", "land")
 _DRAW_BUDGET = 1 << 21  # Monte Carlo numbers held in memory at once (16 MB per float64 array)
 
 
@@ -39,12 +41,14 @@ def lognormal_mean(
     ----------
     m : LogMoments
         Log-moments of any shape; every result has that shape.
-    method : {"cox", "modified_cox", "gci", "bootstrap"}
+    method : {"cox", "modified_cox", "gci", "bootstrap", "land"}
         ``"cox"``: ``exp(ȳ + s²/2 ± z·sqrt(s²/n + s⁴/(2(n−1))))`` (Land 1972; Zhou & Gao 1997).
         ``"modified_cox"``: the same with ``t(1−α/2, n−1)`` in place of ``z`` (Armstrong 1992; Olsson
         2005). ``"gci"``: generalized confidence interval (Krishnamoorthy & Mathew 2003), Monte Carlo
         with ``n_draws`` draws per group. ``"bootstrap"``: BCa bootstrap (Efron 1987) with
-        ``n_draws`` resamples per group; needs the raw ``values`` and ``codes``.
+        ``n_draws`` resamples per group; needs the raw ``values`` and ``codes``. ``"land"``: Land's
+        (1971, 1975) exact interval, equal tails, computed numerically (no tables) for any ``n >= 2``
+        and level; see Notes.
     confidence_level : float
         Two-sided level, strictly between 0 and 1.
     random_state : None, int, numpy.random.SeedSequence or numpy.random.Generator
@@ -80,6 +84,25 @@ def lognormal_mean(
     as ``scipy.stats.bootstrap(method="BCa")``. The random streams differ from scipy's, so results
     agree with it only to Monte Carlo error.
 
+    *Land*: each bound is the one-sided uniformly most accurate unbiased bound of Land (1971) for
+    ``θ = μ + σ²/2`` at level ``1 − α/2``, so the interval has equal tails; the limits are
+    ``exp(ȳ + s²/2 + s·H/√(n−1))`` with Land's ``H_{α/2}`` and ``H_{1−α/2}``, which are computed here
+    rather than read from his tables. For a trial value ``θ₀`` the test conditions on the statistic
+    sufficient for ``σ²`` under ``θ = θ₀``, ``c = S² + n(ȳ − θ₀)²`` (``S²`` the sum of squared deviations
+    of the logs). Given ``c``, ``v = √n(ȳ − θ₀)/√c`` has density proportional to
+    ``exp(−a v)(1 − v²)^((n−3)/2)`` on ``(−1, 1)`` with ``a = √(n c)/2``, free of ``σ²`` (derived from
+    the independence of ``ȳ`` and ``S²``; this is Land's conditional test). With ``v = −cos φ`` its
+    distribution function is ``∫₀^φ e^{a cos t} sin^{n−2} t dt`` normalised, a smooth unimodal
+    integrand evaluated by Gauss-Legendre rules (64 nodes on each side of ``φ``, over 30 Laplace
+    widths around the mode). The bounds solve ``P(V ≤ v_obs | θ₀) = α/2`` (upper) and ``1 − α/2``
+    (lower) by a bracketed root search over ``θ₀`` (Chandrupatla,
+    ``scipy.optimize.elementwise.find_root``), all groups at once. Where all logs are equal
+    (``S² = 0``) the interval collapses to the estimate.
+
+    Caution: intervals for mean exposures or concentrations are used in regulatory and safety
+    decisions; these results support, and do not replace, validated tools, qualified review, local
+    rules and licensed practice.
+
     References
     ----------
     Land, C. E. (1972). An evaluation of approximate confidence interval estimation methods for
@@ -95,6 +118,11 @@ def lognormal_mean(
     115:103-121.
     Efron, B. (1987). Better bootstrap confidence intervals. JASA 82:171-185; Efron, B. & Tibshirani,
     R. J. (1993). An Introduction to the Bootstrap, ch. 14.
+    Land, C. E. (1971). Confidence intervals for linear functions of the normal mean and variance.
+    Ann. Math. Stat. 42:1187-1205. Land, C. E. (1975). Tables of confidence limits for linear
+    functions of the normal mean and variance. Selected Tables in Mathematical Statistics 3:385-419.
+    Lehmann, E. L. & Romano, J. P. (2005). Testing Statistical Hypotheses, 3rd ed., section 4.4
+    (unbiased tests in exponential families by conditioning).
 
     Examples
     --------
@@ -106,6 +134,9 @@ def lognormal_mean(
     >>> out = lognormal_mean(m, method="cox")
     >>> np.round(out["ci_low"], 2), np.round(out["ci_high"], 2)
     (array([190.24]), array([409.82]))
+    >>> out = lognormal_mean(m, method="land")
+    >>> np.round(out["ci_low"], 2), np.round(out["ci_high"], 2)
+    (array([198.32]), array([446.02]))
     """
     if method not in LOGNORMAL_MEAN_METHODS:
         raise ValueError(
@@ -151,6 +182,11 @@ def lognormal_mean(
             ql, qh = np.quantile(t_, qs, axis=1)
             with np.errstate(over="ignore"):
                 low[g], high[g] = np.exp(ql), np.exp(qh)
+    elif method == "land":
+        m2 = np.asarray(m.m2_log, dtype=np.float64).ravel()
+        tl, th = land_bounds(n, ybar, m2, cl, ok)
+        with np.errstate(over="ignore", invalid="ignore"):
+            low, high = np.exp(tl), np.exp(th)
     else:
         low, high = _bootstrap_bca(m, values, codes, cl, random_state, _check_draws(n_draws), ok)
 
@@ -160,6 +196,99 @@ def lognormal_mean(
         "ci_high": high.reshape(shape),
         "method": np.full(shape, method, dtype=object),
     }
+
+
+_LAND_GL_X, _LAND_GL_W = np.polynomial.legendre.leggauss(64)
+_LAND_WIDTHS = 30.0  # half-width of the integration window, in Laplace widths of the integrand
+_LAND_TOL = {"xatol": 1e-11, "xrtol": 1e-11, "fatol": 0.0, "frtol": 0.0}
+
+
+def _gl_log_integral(lo: np.ndarray, hi: np.ndarray, a: np.ndarray, k: np.ndarray,
+                     phi_m: np.ndarray) -> np.ndarray:
+    """``∫_lo^hi exp(h(t) − h(φ_m)) dt`` with ``h(t) = a cos t + k ln sin t`` (Gauss-Legendre, 64 nodes)."""
+    half = 0.5 * (hi - lo)
+    t = (lo + half)[..., None] + half[..., None] * _LAND_GL_X
+    pm = phi_m[..., None]
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        dcos = -2.0 * np.sin(0.5 * (t + pm)) * np.sin(0.5 * (t - pm))  # cos t − cos φ_m, no cancellation
+        dlog = np.where(k[..., None] > 0, k[..., None] * (np.log(np.sin(t)) - np.log(np.sin(pm))), 0.0)
+        h = a[..., None] * dcos + dlog
+        return half * np.sum(_LAND_GL_W * np.exp(h), axis=-1)
+
+
+def _land_cdf(theta0: np.ndarray, n: np.ndarray, ybar: np.ndarray, m2: np.ndarray) -> np.ndarray:
+    """``P(V <= v_obs)`` of Land's conditional test at ``θ = θ₀`` (see :func:`lognormal_mean`)."""
+    w = ybar - theta0
+    rn = np.sqrt(n)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        c = m2 + n * w * w
+        sc = np.sqrt(c)
+        # 1 + v and 1 − v (times √c) without cancellation: their product is S² = m2
+        pos = w >= 0
+        big = sc + rn * np.abs(w)
+        p = np.where(pos, big, m2 / big)
+        q = np.where(pos, m2 / big, big)
+        phi_v = 2.0 * np.arctan2(np.sqrt(p), np.sqrt(q))
+        a = 0.5 * np.sqrt(n * c)
+        k = n - 2.0
+        root = np.sqrt(k * k + 4.0 * a * a)
+        u = np.where(root > 0, 2.0 * a / (k + root), 0.0)  # cos of the mode of a cos t + k ln sin t
+        phi_m = np.arccos(np.clip(u, -1.0, 1.0))
+        one_m_u2 = (1.0 - u) * (1.0 + u)
+        curv = a * u + np.where(k > 0, k / one_m_u2, 0.0)
+        width = np.where(curv > 0, 1.0 / np.sqrt(curv), np.inf)
+        lo = np.maximum(phi_m - _LAND_WIDTHS * width, 0.0)
+        hi = np.minimum(phi_m + _LAND_WIDTHS * width, np.pi)
+        cut = np.clip(phi_v, lo, hi)
+        i1 = _gl_log_integral(lo, cut, a, k, phi_m)
+        i2 = _gl_log_integral(cut, hi, a, k, phi_m)
+        return i1 / (i1 + i2)
+
+
+def land_bounds(n: np.ndarray, ybar: np.ndarray, m2: np.ndarray, confidence_level: float,
+                ok: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Land's equal-tailed exact limits for ``θ = μ + σ²/2`` on the log scale (flat arrays).
+
+    ``n``, ``ybar`` (mean of the logs) and ``m2`` (sum of squared deviations) per group; NaN outside
+    ``ok``. See :func:`lognormal_mean` (``method="land"``) for the method.
+    """
+    cl = _check_level(confidence_level)
+    low = np.full(n.shape, np.nan)
+    high = np.full(n.shape, np.nan)
+    sel = np.flatnonzero(ok & (m2 > 0))
+    flat = np.flatnonzero(ok & (m2 == 0))
+    low[flat] = high[flat] = ybar[flat]
+    if sel.size == 0:
+        return low, high
+    nn, yb, mm = n[sel], ybar[sel], m2[sel]
+    s2 = mm / (nn - 1.0)
+    theta = yb + 0.5 * s2
+    se = np.sqrt(s2 / nn + s2 * s2 / (2.0 * (nn - 1.0)))
+
+    def f(t0: np.ndarray, n_: np.ndarray, y_: np.ndarray, m_: np.ndarray, target: np.ndarray) -> np.ndarray:
+        return _land_cdf(t0, n_, y_, m_) - target
+
+    for p, out in (((1.0 + cl) / 2.0, low), ((1.0 - cl) / 2.0, high)):
+        target = np.full(sel.size, p)
+        z = float(special.ndtri(p))
+        guess = theta - z * se  # Cox-type start; the bracket grows until it holds the root
+        step = 2.0 * se + 1e-3 * (np.abs(theta) + 1.0)
+        lo, hi = guess - step, guess + step
+        bad_lo = ~(f(lo, nn, yb, mm, target) >= 0)  # F decreases in θ₀
+        bad_hi = ~(f(hi, nn, yb, mm, target) <= 0)
+        for _ in range(200):  # widen only the ends that do not bracket yet, all groups together
+            if not (bad_lo.any() or bad_hi.any()):
+                break
+            step = np.where(bad_lo | bad_hi, 2.0 * step, step)
+            i = np.flatnonzero(bad_lo)
+            lo[i] -= step[i]
+            bad_lo[i] = ~(f(lo[i], nn[i], yb[i], mm[i], target[i]) >= 0)
+            i = np.flatnonzero(bad_hi)
+            hi[i] += step[i]
+            bad_hi[i] = ~(f(hi[i], nn[i], yb[i], mm[i], target[i]) <= 0)
+        res = elementwise.find_root(f, (lo, hi), args=(nn, yb, mm, target), tolerances=_LAND_TOL)
+        out[sel] = np.where(res.success, res.x, np.nan)
+    return low, high
 
 
 def _check_draws(n_draws: Any) -> int:
