@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 
 from logstats.accessors._api import install
-from logstats.accessors._engine import compare, compute, warn_if_empty
+from logstats.accessors._engine import compare, compare_nested, compute, warn_if_empty
 from logstats.accessors._face import FigureMethods
 from logstats.accessors._labels import (
     Groups,
@@ -182,8 +182,11 @@ class _PandasBase(FigureMethods):
         overstates the evidence when cells share a well, plate or day. With ``replicate=`` (a column
         or aligned Series) each replicate contributes one value, the mean of its logs; ``n`` and
         ``n_reference`` then count replicates and ``n_cells``/``n_cells_reference`` the values
-        (Lord et al. 2020). ``paired=True`` pairs a level's replicate with the reference replicate of
-        the same label and tests the differences (unmatched ones are counted in ``n_unpaired``).
+        (Lord et al. 2020). ``replicate=[outer, ..., inner]`` (e.g. ``["day", "well"]``) averages the
+        logs up the nesting (cells to wells, wells to days; an inner label is read within its outer
+        one) and makes the outermost level the unit; ``n_<inner>`` counts the inner units.
+        ``paired=True`` pairs a level's replicate with the reference replicate of the same label and
+        tests the differences (unmatched ones are counted in ``n_unpaired``).
         Values left out are counted for the level (``n_missing``, ``n_nonpositive``) and for the
         reference (``n_missing_reference``, ``n_nonpositive_reference``). ``unit`` says what a unit is.
 
@@ -219,7 +222,15 @@ class _PandasBase(FigureMethods):
                              f"the levels are {levels!r}")
         ref = levels.index(reference)
         rep_codes = n_rep = None
-        if replicate is not None:
+        nested = None
+        if isinstance(replicate, list) and len(replicate) > 1:  # cells in wells in days: nested units
+            keys = resolve_keys(self._obj, replicate)
+            frame = pd.DataFrame({i: k.to_numpy() for i, k in enumerate(keys)}, index=df.index)
+            nested = nested_codes(frame)
+            outer_codes, _ = pd.factorize(frame[0], sort=True)  # the outermost label itself, shared
+            nested[0] = np.asarray(outer_codes, dtype=np.intp)
+            nested_names = [str(k.name) for k in keys]
+        elif replicate is not None:
             rk = resolve_keys(self._obj, replicate)
             rg = factorize_keys(rk, dropna=True, sort=True)
             rep_codes, n_rep = rg.codes, rg.ngroups
@@ -234,9 +245,15 @@ class _PandasBase(FigureMethods):
                       equivalence=equivalence, equivalence_alpha=equivalence_alpha)
         results = []
         for col in cols:
-            res = compare(column_values(df[col], col), groups.codes, groups.ngroups, ref, policy=policy,
-                          labels=levels, where=_where(col), stratum_codes=strat_codes, n_strata=n_strata,
-                          replicate_codes=rep_codes, n_replicates=n_rep, params=params)
+            if nested is not None:
+                res = compare_nested(column_values(df[col], col), groups.codes, groups.ngroups, ref,
+                                     policy=policy, labels=levels, where=_where(col), nested=nested,
+                                     names=nested_names, stratum_codes=strat_codes, n_strata=n_strata,
+                                     params=params)
+            else:
+                res = compare(column_values(df[col], col), groups.codes, groups.ngroups, ref, policy=policy,
+                              labels=levels, where=_where(col), stratum_codes=strat_codes, n_strata=n_strata,
+                              replicate_codes=rep_codes, n_replicates=n_rep, params=params)
             keep = [i for i in range(groups.ngroups) if i != ref]
             warn_if_empty(res["ratio"][:, keep], reference=reference, where=_where(col), paired=paired,
                           n=res["n"][:, keep], n_reference=res["n_reference"][:, keep], stacklevel=3)

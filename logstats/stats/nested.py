@@ -454,3 +454,20 @@ def plan_power(
         power = np.where(np.isinf(nc), 1.0, power)
     return np.clip(power, 0.0, 1.0)
 
+
+
+def unit_log_means(logs: np.ndarray, unit_codes: np.ndarray, n_units: int) -> tuple[np.ndarray, np.ndarray]:
+    """Mean of the logs per unit and the number of values in it (``bincount``; NaN for an empty unit).
+
+    The step that turns cells into wells (and wells into days) when a nested design is compared with
+    the outermost unit as the replicate: each unit then counts once, whatever its number of values
+    (Lord et al. 2020).
+    """
+    keep = unit_codes >= 0
+    n = np.bincount(unit_codes[keep], minlength=n_units).astype(np.int64)
+    total = np.bincount(unit_codes[keep], weights=logs[keep], minlength=n_units)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.where(n > 0, total / np.maximum(n, 1), np.nan)
+    # one correction pass keeps the mean exact to rounding for tightly clustered logs
+    dev = np.bincount(unit_codes[keep], weights=logs[keep] - mean[unit_codes[keep]], minlength=n_units)
+    return np.where(n > 0, mean + dev / np.maximum(n, 1), np.nan), n
