@@ -1,40 +1,64 @@
-"""The ``logstats`` command line: log-scale statistics on CSV, TSV and Parquet tables.
+"""The ``logstats`` command line: log-scale statistics on CSV, TSV, Parquet and Excel tables.
 
 Subcommands ``summary``, ``compare``, ``fit``, ``check``, ``report`` and ``demo``; ``logstats
 SUBCOMMAND --help`` shows each one's options with an example. Tables go to the terminal, aligned,
 or with ``--output FILE`` to a ``.csv``, ``.tsv`` or ``.parquet`` file; figures with ``--plot FILE``.
 
+Tables as labs export them: ``--sep``, ``--decimal`` and ``--encoding`` say how a text table is
+written; without them a semicolon-separated file with decimal commas is recognised from its first
+lines (and the command says so on standard error). ``.xlsx`` workbooks are read with openpyxl
+(``pip install 'logstats[xlsx]'``), the first sheet or ``--sheet``.
+
+Column names: ``--value`` and ``--by`` are repeatable, one column per option, so names holding
+commas, quotes or units (``--value "conc (mg/L)"``) work as written; a second ``--by`` adds a key.
+The older comma-list form (``--value a,b``) is still read when it is unambiguous: a column of that
+exact name wins; otherwise the text is split at commas only when every part names a column.
+
+Group order: tables and figures show the groups of a categorical key in its category order, of a
+numeric or date key in ascending order, of month or weekday names in calendar order, and of other
+text in natural order ("dish 2" before "dish 10"); see :func:`logstats.format.data_order`.
+
 Exit codes: 0 success, 1 a problem with the data (the message names the file, the column and what
-to do), 2 a usage error (unknown option, missing argument, unsupported file type).
+to do) or nothing could be computed, 2 a usage error (unknown option, missing argument, unsupported
+file type).
 """
 
 from __future__ import annotations
 
 import argparse
 import contextlib
+import csv
+import io
 import os
 import re
+import shlex
 import shutil
 import sys
 import textwrap
+import time
 import warnings
-from collections.abc import Sequence
+from collections.abc import Callable, Hashable, Sequence
 from pathlib import Path
 from typing import Any
 
 import pandas as pd
 
 import logstats
-from logstats.format import format_table
+from logstats.format import format_table, in_data_order, joined_key
 
-__all__ = ["DataError", "main", "read_table"]
+__all__ = ["DataError", "main", "read_table", "sniff_text_table"]
 
 EXIT_OK, EXIT_DATA, EXIT_USAGE = 0, 1, 2
 
-_READ_SUFFIXES = {".csv": "csv", ".tsv": "tsv", ".tab": "tsv", ".parquet": "parquet", ".pq": "parquet"}
+_READ_SUFFIXES = {".csv": "csv", ".txt": "csv", ".tsv": "tsv", ".tab": "tsv", ".parquet": "parquet",
+                  ".pq": "parquet", ".xlsx": "xlsx", ".xlsm": "xlsx"}
 _COMPRESSION = (".gz", ".bz2", ".xz", ".zst", ".zip")
 _TABLE_OUT = (".csv", ".tsv", ".parquet")
 _PLOT_OUT = (".png", ".svg", ".pdf")
+_FORMATS = ("csv", "tsv", "parquet", "xlsx")
+_SEP_NAMES = {"tab": "\t", "\\t": "\t", "comma": ",", "semicolon": ";", "pipe": "|", "space": " "}
+_SNIFF_BYTES = 1 << 18  # the first 256 KiB tell the delimiter and the decimal mark
+_LARGE_FILE = 50 * 1024 * 1024  # files above this size get a progress line while they are read
 
 #: How the library's keyword hints read on the command line.
 _HINTS: tuple[tuple[str, str], ...] = (
@@ -49,6 +73,9 @@ _HINTS: tuple[tuple[str, str], ...] = (
     (r"\bconfidence_level=", "--confidence-level "),
     (r"\bequivalence=", "--equivalence "),
     (r"(?<![\w-])by=", "--by "),
+    # numbers as numbers: numpy 2 writes np.float64(2.5) where the user wrote 2.5
+    (r"\bnp\.(?:float|int|uint)\d*\(([^()]*)\)", r"\1"),
+    (r"\bnp\.str_\(('[^']*')\)", r"\1"),
 )
 
 
@@ -72,6 +99,28 @@ def _message(exc: BaseException) -> str:
     return str(exc)
 
 
+class _Progress:
+    """Progress lines on standard error (``logstats: [  2.1 s] drawing figures``).
+
+    On only when standard error is a terminal and ``--quiet`` was not given, so logs and pipes stay
+    clean; the elapsed time is counted from the start of the command.
+    """
+
+    def __init__(self, enabled: bool) -> None:
+        self.enabled = enabled
+        self.t0 = time.perf_counter()
+
+    def __call__(self, step: str) -> None:
+        if self.enabled:
+            print(f"logstats: [{time.perf_counter() - self.t0:5.1f} s] {step}", file=sys.stderr, flush=True)
+
+
+def _note(args: argparse.Namespace | None, text: str) -> None:
+    """An informational line on standard error (what was detected, what was written); --quiet hides it."""
+    if args is None or not getattr(args, "quiet", False):
+        print(f"logstats: {text}", file=sys.stderr)
+
+
 # --------------------------------------------------------------------------------------------------
 # reading and checking tables
 
@@ -85,19 +134,132 @@ def _table_format(path: str, fmt: str | None) -> str:
     suffixes = [s.lower() for s in p.suffixes]
     while suffixes and suffixes[-1] in _COMPRESSION:
         suffixes.pop()
+    if suffixes and suffixes[-1] == ".xls":
+        raise UsageError(f"{path!r} is an old-style Excel .xls workbook, which is not read; save it as "
+                         ".xlsx (or as CSV) and pass that file")
     if suffixes and suffixes[-1] in _READ_SUFFIXES:
         return _READ_SUFFIXES[suffixes[-1]]
     raise UsageError(
-        f"cannot tell the format of {path!r} from its extension; name it .csv, .tsv or .parquet, "
-        "or pass --format csv|tsv|parquet"
+        f"cannot tell the format of {path!r} from its extension; name it .csv, .tsv, .parquet or .xlsx, "
+        "or pass --format csv|tsv|parquet|xlsx"
     )
 
 
-def read_table(path: str, *, fmt: str | None = None) -> pd.DataFrame:
-    """Read a CSV, TSV or Parquet table, turning every failure into a :class:`DataError`.
+def _separator(text: str | None) -> str | None:
+    if text is None:
+        return None
+    sep = _SEP_NAMES.get(text.lower(), text)
+    if len(sep) != 1:
+        raise UsageError(f"--sep {text!r}: give one character (',', ';', '|') or tab, comma, semicolon, "
+                         "pipe, space")
+    return sep
+
+
+_COMMA_DECIMAL = re.compile(r"[+-]?\d*,\d+(?:[eE][+-]?\d+)?")
+_DOT_DECIMAL = re.compile(r"[+-]?\d*\.\d+(?:[eE][+-]?\d+)?")
+_DOT_THOUSANDS = re.compile(r"[+-]?\d{1,3}(?:\.\d{3})+(?:,\d+)?")
+_SEP_WORDS = {",": "comma", ";": "semicolon", "\t": "tab", "|": "pipe", " ": "space"}
+
+
+def sniff_text_table(text: str, *, sep: str | None = None) -> dict[str, str]:
+    """Delimiter, decimal mark and thousands separator of a text table, from its first lines.
+
+    The delimiter is the one of comma, semicolon, tab and pipe that splits the header into the most
+    fields while at least 90 % of the lines have that many (quoted fields are respected; comma wins
+    ties). With a delimiter other than the comma, the decimal mark is the comma when cells such as
+    ``7,4`` occur and no cell such as ``7.4`` does; then ``1.234,5`` style cells also set the
+    thousands separator to ``.``. Returns ``{"sep": …, "decimal": …}`` plus ``"thousands"`` when found.
+
+    Examples
+    --------
+    >>> sniff_text_table("Ozone;Wind\\n41;7,4\\n36;8\\n")
+    {'sep': ';', 'decimal': ','}
+    >>> sniff_text_table("a,b\\n1.5,2\\n")
+    {'sep': ',', 'decimal': '.'}
+    """
+    lines = [ln for ln in text.splitlines()[:400] if ln.strip()]
+    if not lines:
+        return {"sep": sep or ",", "decimal": "."}
+    if sep is None:
+        best, best_width = ",", 1
+        for cand in (",", ";", "\t", "|"):
+            rows = list(csv.reader(lines, delimiter=cand))
+            width = len(rows[0])
+            same = sum(len(r) == width for r in rows) / len(rows)
+            if width > best_width and same >= 0.9:
+                best, best_width = cand, width
+        sep = best
+    out = {"sep": sep, "decimal": "."}
+    if sep != ",":
+        cells = [c.strip() for r in csv.reader(lines[1:], delimiter=sep) for c in r]
+        comma = sum(bool(_COMMA_DECIMAL.fullmatch(c)) for c in cells)
+        dot = sum(bool(_DOT_DECIMAL.fullmatch(c)) for c in cells)
+        thousands = [c for c in cells if _DOT_THOUSANDS.fullmatch(c)]
+        if comma and not dot:
+            out["decimal"] = ","
+        elif comma and all(_DOT_THOUSANDS.fullmatch(c) for c in cells if _DOT_DECIMAL.fullmatch(c)):
+            out["decimal"] = ","
+        if out["decimal"] == "," and thousands:
+            out["thousands"] = "."
+    return out
+
+
+def _decode_sample(raw: bytes, encoding: str, truncated: bool, path: str) -> str:
+    try:
+        return raw.decode(encoding)
+    except UnicodeDecodeError as exc:
+        if truncated and exc.start >= len(raw) - 4:  # a character cut at the end of the sample
+            return raw[: exc.start].decode(encoding, errors="replace")
+        raise DataError(
+            f"{path}: is not {encoding} text (byte {raw[exc.start]:#04x} at position {exc.start}); "
+            "pass --encoding with the file's encoding, e.g. --encoding cp1252 (Windows and Excel "
+            "exports) or --encoding latin-1"
+        ) from exc
+    except LookupError as exc:
+        raise UsageError(f"--encoding {encoding!r} is not an encoding Python knows (try utf-8, cp1252, "
+                         "latin-1)") from exc
+
+
+def _read_excel(path: str, sheet: str | None) -> pd.DataFrame:
+    with open(path, "rb") as fh:
+        magic = fh.read(4)
+    if magic != b"PK\x03\x04":
+        raise UsageError(f"{path!r} is not an Excel workbook (an .xlsx file is a zip archive); if it is "
+                         "a text table, rename it or pass --format csv|tsv|parquet")
+    try:
+        import openpyxl
+    except ImportError as exc:
+        raise DataError(
+            f"{path}: reading Excel .xlsx files needs openpyxl, which is not installed; install it with "
+            "pip install 'logstats[xlsx]' (or save the sheet as CSV)"
+        ) from exc
+    wb = openpyxl.load_workbook(path, read_only=True)
+    names = list(wb.sheetnames)
+    wb.close()
+    if sheet is None:
+        chosen: str | int = 0
+    elif sheet in names:
+        chosen = sheet
+    elif sheet.isdigit() and 1 <= int(sheet) <= len(names):
+        chosen = int(sheet) - 1
+    else:
+        shown = ", ".join(repr(n) for n in names)
+        raise DataError(f"{path}: --sheet {sheet!r} is not a sheet of the workbook; its sheets are {shown} "
+                        f"(or a number 1 to {len(names)})")
+    return pd.read_excel(path, sheet_name=chosen, engine="openpyxl")
+
+
+def read_table(path: str, *, fmt: str | None = None, sep: str | None = None, decimal: str | None = None,
+               encoding: str | None = None, sheet: str | None = None,
+               notes: Callable[[str], None] | None = None,
+               progress: Callable[[str], None] | None = None) -> pd.DataFrame:
+    """Read a CSV, TSV, Parquet or Excel table, turning every failure into a :class:`DataError`.
 
     ``path`` ``"-"`` reads CSV from standard input. The format comes from the extension (``.csv``,
-    ``.tsv``/``.tab``, ``.parquet``/``.pq``, optionally compressed, e.g. ``.csv.gz``) or ``fmt``.
+    ``.tsv``/``.tab``, ``.parquet``/``.pq``, ``.xlsx``, optionally compressed, e.g. ``.csv.gz``) or
+    ``fmt``. For text tables ``sep``, ``decimal`` and ``encoding`` (default UTF-8) say how the file is
+    written; when ``sep`` or ``decimal`` is not given, :func:`sniff_text_table` looks at the first
+    lines and anything other than comma + decimal point is reported through ``notes``.
     """
     kind = _table_format(path, fmt)
     if path != "-":
@@ -106,6 +268,9 @@ def read_table(path: str, *, fmt: str | None = None) -> pd.DataFrame:
             raise DataError(f"{path}: file not found; check the path (relative to {Path.cwd()})")
         if p.is_dir():
             raise DataError(f"{path}: is a folder, not a table file")
+        if progress is not None and p.stat().st_size > _LARGE_FILE:
+            progress(f"reading {path} ({p.stat().st_size / 2**20:.0f} MiB)")
+    enc = encoding or "utf-8"
     try:
         if kind == "parquet":
             try:
@@ -115,24 +280,66 @@ def read_table(path: str, *, fmt: str | None = None) -> pd.DataFrame:
                     f"{path}: reading Parquet needs pyarrow, which is not installed; install it with "
                     "pip install 'logstats[parquet]' (or convert the table to CSV)"
                 ) from exc
+        elif kind == "xlsx":
+            df = _read_excel(path, sheet)
         else:
-            source: Any = sys.stdin if path == "-" else path
-            df = pd.read_csv(source, sep="\t" if kind == "tsv" else ",")
-    except DataError:
+            kw: dict[str, Any] = {"sep": "\t" if kind == "tsv" else sep}
+            source: Any = path
+            compressed = path != "-" and Path(path).suffix.lower() in _COMPRESSION
+            if path == "-":
+                source = io.StringIO(sys.stdin.read())
+            if kind == "csv" and (sep is None or decimal is None) and not compressed:
+                if path == "-":
+                    sample, truncated = source.getvalue()[:_SNIFF_BYTES], False
+                else:
+                    with open(path, "rb") as fh:
+                        raw = fh.read(_SNIFF_BYTES + 1)
+                    truncated = len(raw) > _SNIFF_BYTES
+                    sample = _decode_sample(raw[:_SNIFF_BYTES], enc, truncated, path)
+                if truncated:
+                    sample = sample[: sample.rfind("\n") + 1] or sample
+                found = sniff_text_table(sample.lstrip("\ufeff"), sep=sep)
+                said = []
+                if sep is None:
+                    kw["sep"] = found["sep"]
+                    if found["sep"] != ",":
+                        said.append(f"{_SEP_WORDS.get(found['sep'], repr(found['sep']))}-separated")
+                if decimal is None:
+                    decimal = found["decimal"]
+                    if decimal == ",":
+                        said.append("decimal commas")
+                    if "thousands" in found:
+                        kw["thousands"] = found["thousands"]
+                        said.append("'.' between thousands")
+                if said and notes is not None:
+                    notes(f"{path}: read as {' with '.join(said[:2])}"
+                          + (f" and {said[2]}" if len(said) > 2 else "")
+                          + " (detected from the first lines; --sep and --decimal override)")
+            kw["sep"] = kw["sep"] or ","
+            if decimal is not None:
+                kw["decimal"] = decimal
+            if kw["sep"] == kw.get("decimal"):
+                raise UsageError(f"--sep and --decimal are both {kw['sep']!r}; they must differ")
+            df = pd.read_csv(source, encoding=enc if path != "-" else None, **kw)
+    except (DataError, UsageError):
         raise
     except pd.errors.EmptyDataError as exc:
         raise DataError(f"{path}: the file is empty; a table needs a header line naming its columns "
                         "and one line per row") from exc
     except pd.errors.ParserError as exc:
         detail = str(exc).strip().replace("Error tokenizing data. C error: ", "")
-        other = "tab" if kind == "csv" else "comma"
         raise DataError(
             f"{path}: malformed {kind.upper()} table ({detail}); check that every line has the same "
-            f"number of fields and that text containing the delimiter is quoted, or pass "
-            f"--format {'tsv' if other == 'tab' else 'csv'} if the file is {other}-separated"
+            f"number of fields and that text containing the delimiter is quoted, or pass --sep with "
+            f"the delimiter the file uses (e.g. --sep ';' or --sep tab)"
         ) from exc
     except UnicodeDecodeError as exc:
-        raise DataError(f"{path}: is not UTF-8 text ({exc.reason}); save it as UTF-8 CSV") from exc
+        raise DataError(f"{path}: is not {enc} text ({exc.reason}); pass --encoding with the file's "
+                        "encoding, e.g. --encoding cp1252 (Windows and Excel exports) or --encoding "
+                        "latin-1") from exc
+    except LookupError as exc:
+        raise UsageError(f"--encoding {enc!r} is not an encoding Python knows (try utf-8, cp1252, "
+                         "latin-1)") from exc
     except (OSError, ValueError) as exc:
         raise DataError(f"{path}: cannot be read as {kind.upper()}: {exc}") from exc
     if len(df.columns) == 0:
@@ -142,18 +349,41 @@ def read_table(path: str, *, fmt: str | None = None) -> pd.DataFrame:
     return df
 
 
-def _split_values(items: Sequence[str] | None) -> list[str]:
-    out: list[str] = []
+def _resolve_columns(df: pd.DataFrame, path: str, items: Sequence[str] | None, option: str) -> list[Hashable]:
+    """Column names from repeated ``option`` texts: an exact column name first, else a comma list.
+
+    A text that is exactly a column's name is that column, commas and all. Otherwise it is split at
+    commas only when every part is a column (the older ``--value a,b`` form); anything else is an
+    error naming the table's columns.
+    """
+    names: dict[str, Hashable] = {str(c): c for c in df.columns}
+    out: list[Hashable] = []
     for item in items or []:
-        out.extend(v.strip() for v in item.split(",") if v.strip())
+        if item in names:
+            found = [names[item]]
+        elif "," in item:
+            parts = [x.strip() for x in item.split(",") if x.strip()]
+            missing = [x for x in parts if x not in names]
+            if missing:
+                cols = ", ".join(repr(c) for c in names)
+                raise DataError(
+                    f"{path}: {option} {item!r} is not a column, and as a comma list its part(s) "
+                    f"{', '.join(map(repr, missing))} are not columns either; its columns are {cols}. "
+                    f"Repeat {option} once per column (quote names with spaces or commas)"
+                )
+            found = [names[x] for x in parts]
+        else:
+            _check_column(df, path, item, option)
+            found = [names[item]]
+        out.extend(c for c in found if c not in out)
     return out
 
 
 def _check_column(df: pd.DataFrame, path: str, name: str, option: str) -> None:
-    if name in df.columns:
+    if name in df.columns or name in {str(c) for c in df.columns}:
         return
     cols = ", ".join(repr(str(c)) for c in df.columns)
-    near = [str(c) for c in df.columns if str(c).lower() == name.lower()]
+    near = [str(c) for c in df.columns if str(c).lower().strip() == name.lower().strip()]
     hint = f"; did you mean {near[0]!r}? (names are case-sensitive)" if near else ""
     raise DataError(
         f"{path}: column {name!r} (from {option}) is not in the table{hint}; its columns are {cols}. "
@@ -161,7 +391,7 @@ def _check_column(df: pd.DataFrame, path: str, name: str, option: str) -> None:
     )
 
 
-def _check_numeric(df: pd.DataFrame, path: str, name: str, option: str = "--value") -> None:
+def _check_numeric(df: pd.DataFrame, path: str, name: Hashable, option: str = "--value") -> None:
     s = df[name]
     if pd.api.types.is_bool_dtype(s.dtype):
         raise DataError(f"{path}: column {name!r} holds true/false values, not measurements; "
@@ -173,23 +403,27 @@ def _check_numeric(df: pd.DataFrame, path: str, name: str, option: str = "--valu
     if not bad.any():
         return
     pos = int(bad.to_numpy().argmax())
-    shown = s.iloc[pos]
+    shown = str(s.iloc[pos])
+    hint = ""
+    if _COMMA_DECIMAL.fullmatch(shown.strip()):
+        hint = (" It looks like a decimal comma: pass --decimal ',' (and --sep if the file is not "
+                "comma-separated).")
     raise DataError(
         f"{path}: column {name!r} is not numeric: {int(bad.sum())} entr{'y' if bad.sum() == 1 else 'ies'} "
-        f"cannot be read as numbers, the first {str(shown)!r} in data row {pos + 1} (line {pos + 2} of "
-        f"a CSV with a header). Fix or blank such entries (empty cells count as missing), or choose "
-        f"another {option}"
+        f"cannot be read as numbers, the first {shown!r} in data row {pos + 1} (line {pos + 2} of "
+        f"a CSV with a header).{hint} Fix or blank such entries (empty cells count as missing), or "
+        f"choose another {option}"
     )
 
 
-def _order_levels(df: pd.DataFrame, by: str, reference: Any) -> tuple[pd.DataFrame, Any]:
+def _order_levels(df: pd.DataFrame, by: Hashable, reference: Any) -> tuple[pd.DataFrame, Any]:
     """Put the reference level first (a categorical key) and match it to the column's type."""
     from logstats.report import reference_first
 
     try:
         return reference_first(df, by, reference)
     except ValueError as exc:
-        raise DataError(f"{exc}. Pass --reference with one of them") from None
+        raise DataError(f"{_cli_hint(str(exc))}. Pass --reference with one of them") from None
 
 
 def _detection_limit(text: str | None, df: pd.DataFrame, path: str) -> Any:
@@ -245,7 +479,7 @@ def _emit(table: pd.DataFrame, args: argparse.Namespace, *, columns: Sequence[st
                                 "pip install 'logstats[parquet]' or write .csv") from exc
         else:
             table.to_csv(out, sep="\t" if suffix == ".tsv" else ",")
-        print(f"logstats: wrote {out} ({len(table)} rows)", file=sys.stderr)
+        _note(args, f"wrote {out} ({len(table)} rows)")
         return
     cols = [c for c in columns if c in table.columns] if columns is not None else None
     if heading:
@@ -253,14 +487,15 @@ def _emit(table: pd.DataFrame, args: argparse.Namespace, *, columns: Sequence[st
     print(format_table(table, columns=cols, digits=args.digits, ascii=_wants_ascii(args), width=_width()))
 
 
-def _plot_paths(path: str, values: Sequence[str]) -> list[tuple[str, Path]]:
+def _plot_paths(path: str, values: Sequence[Hashable]) -> list[tuple[Hashable, Path]]:
     p = Path(path)
     if len(values) == 1:
         return [(values[0], p)]
-    return [(v, p.with_name(f"{p.stem}-{re.sub(r'[^A-Za-z0-9_.-]+', '_', v)}{p.suffix}")) for v in values]
+    return [(v, p.with_name(f"{p.stem}-{re.sub(r'[^A-Za-z0-9_.-]+', '_', str(v))}{p.suffix}"))
+            for v in values]
 
 
-def _save_plots(args: argparse.Namespace, values: Sequence[str], draw: Any) -> None:
+def _save_plots(args: argparse.Namespace, values: Sequence[Hashable], draw: Any) -> None:
     if args.plot is None:
         return
     try:
@@ -273,43 +508,67 @@ def _save_plots(args: argparse.Namespace, values: Sequence[str], draw: Any) -> N
     import numpy as np
 
     for v, path in _plot_paths(args.plot, values):
+        args.progress(f"drawing {path}")
         axes = draw(v)
         fig = np.ravel(axes)[0].figure
         try:
             fig.savefig(path, dpi=args.dpi)
         finally:
             plt.close(fig)
-        print(f"logstats: wrote {path}", file=sys.stderr)
+        _note(args, f"wrote {path}")
 
 
 # --------------------------------------------------------------------------------------------------
 # subcommands
 
 
-def _load(args: argparse.Namespace) -> tuple[pd.DataFrame, list[str]]:
-    df = read_table(args.table, fmt=args.format)
-    values = _split_values(args.value)
+def _load(args: argparse.Namespace) -> tuple[pd.DataFrame, list[Hashable], list[Hashable]]:
+    """The table, its value columns and its group keys, checked (the keys not yet put in order)."""
+    df = read_table(args.table, fmt=args.format, sep=_separator(args.sep), decimal=args.decimal,
+                    encoding=args.encoding, sheet=args.sheet, notes=lambda t: _note(args, t),
+                    progress=args.progress)
+    values = _resolve_columns(df, args.table, args.value, "--value")
     if not values:
         raise UsageError("--value needs at least one column name")
     for v in values:
-        _check_column(df, args.table, v, "--value")
         _check_numeric(df, args.table, v)
-    for opt in ("by", "replicate"):
-        name = getattr(args, opt, None)
-        if name is not None:
-            _check_column(df, args.table, name, f"--{opt}")
-            if name in values:
-                raise UsageError(f"--{opt} {name!r} is also a --value column")
-    return df, values
+    keys = _resolve_columns(df, args.table, getattr(args, "by", None), "--by")
+    for k in keys:
+        if k in values:
+            raise UsageError(f"--by {k!r} is also a --value column")
+    rep = getattr(args, "replicate", None)
+    if rep is not None:
+        _check_column(df, args.table, rep, "--replicate")
+        rep = {str(c): c for c in df.columns}[rep]
+        if rep in values:
+            raise UsageError(f"--replicate {rep!r} is also a --value column")
+        args.replicate = rep
+    return df, values, keys
 
 
-def _one_or_many(values: list[str]) -> str | list[str]:
+def _by(keys: Sequence[Hashable]) -> Any:
+    """``by=`` for the accessors: None, one key, or a list of keys."""
+    if not keys:
+        return None
+    return keys[0] if len(keys) == 1 else list(keys)
+
+
+def _plot_key(df: pd.DataFrame, keys: Sequence[Hashable]) -> Any:
+    """``by=`` for the figures: one key, or several joined into one (``"5 / first half"``)."""
+    if len(keys) <= 1:
+        return _by(keys)
+    return joined_key(df, keys)
+
+
+def _one_or_many(values: list[Hashable]) -> Hashable | list[Hashable]:
     return values[0] if len(values) == 1 else values
 
 
 def _cmd_summary(args: argparse.Namespace) -> int:
-    df, values = _load(args)
-    res = df.logstats.summary(by=args.by, columns=_one_or_many(values),
+    df, values, keys = _load(args)
+    df = in_data_order(df, keys)
+    args.progress("summary")
+    res = df.logstats.summary(by=_by(keys), columns=_one_or_many(values),
                               confidence_level=args.confidence_level, nonpositive=args.nonpositive,
                               linear=args.linear)
     if isinstance(res, pd.Series):
@@ -319,7 +578,7 @@ def _cmd_summary(args: argparse.Namespace) -> int:
     if args.linear:
         cols += ["median", "mean", "sd"]
     _emit(res, args, columns=cols if not args.all_columns else None)
-    _save_plots(args, values, lambda v: _plot().hist(df, v, by=args.by, layout="panels",
+    _save_plots(args, values, lambda v: _plot().hist(df, v, by=_plot_key(df, keys), layout="panels",
                                                       nonpositive=args.nonpositive, units=args.units,
                                                       normal=True))
     return EXIT_OK
@@ -341,97 +600,161 @@ def _parse_equivalence(text: str | None) -> tuple[float, float] | None:
     return low, high
 
 
+def _row_label(idx: Any) -> str:
+    parts = idx if isinstance(idx, tuple) else (idx,)
+    return " / ".join(str(p) for p in parts)
+
+
+def _empty_reasons(res: pd.DataFrame, args: argparse.Namespace, ref: Any) -> tuple[list[str], bool]:
+    """Why rows of a comparison hold no ratio, one line per such row; and whether all rows are so."""
+    ratio = res["ratio"] if "ratio" in res.columns else pd.Series(dtype=float)
+    bad = ratio.isna().to_numpy()
+    unit = str(args.replicate) if args.replicate is not None else "value"
+    lines = []
+    for label, row in res[bad].iterrows():
+        n, n_ref = int(row.get("n", 0) or 0), int(row.get("n_reference", 0) or 0)
+        where = _row_label(label)
+        if args.paired and n == 0 and int(row.get("n_unpaired", 0) or 0) > 0:
+            lines.append(f"{where}: no {unit} label is shared with the reference {ref!r} "
+                         f"({int(row['n_unpaired'])} {unit}(s) left unpaired), and --paired pairs "
+                         f"replicates by label; check that --replicate {unit} names the same replicates "
+                         "in both groups, or drop --paired")
+        elif n == 0 and n_ref == 0:
+            lines.append(f"{where}: neither this group nor the reference {ref!r} has a usable {unit} here")
+        elif n == 0:
+            lines.append(f"{where}: this group has no usable {unit} (missing, non-positive or not present "
+                         "in this stratum)")
+        elif n_ref == 0:
+            lines.append(f"{where}: the reference {ref!r} has no usable {unit} here")
+        else:
+            lines.append(f"{where}: {n} {unit}(s) against {n_ref} in the reference, too few for a ratio")
+    return lines, bool(bad.size) and bool(bad.all())
+
+
 def _cmd_compare(args: argparse.Namespace) -> int:
-    df, values = _load(args)
+    from logstats.format import count_label
+
+    df, values, keys = _load(args)
+    by = keys[0]
     try:
-        df, ref = _order_levels(df, args.by, args.reference)
+        df, ref = _order_levels(df, by, args.reference)
     except DataError as exc:
         raise DataError(f"{args.table}: {exc}") from None
+    df = in_data_order(df, keys)
     kw: dict[str, Any] = dict(columns=_one_or_many(values), replicate=args.replicate, paired=args.paired,
                               equal_var=args.equal_var, confidence_level=args.confidence_level,
                               adjust=None if args.adjust == "none" else args.adjust,
                               nonpositive=args.nonpositive)
+    if len(keys) > 1:  # further --by keys stratify: the levels of the first are compared within each
+        kw["within"] = _by(keys[1:])
     eq = _parse_equivalence(args.equivalence)
     if eq is not None:
         kw["equivalence"] = eq
-    res = df.logstats.fold_change(args.by, ref, **kw)
+    args.progress("fold changes")
+    res = df.logstats.fold_change(by, ref, **kw)
     if not args.keep_reference:
         idx = res.index
-        res = res[idx.get_level_values(args.by) != ref] if args.by in (idx.names or []) else res
+        res = res[idx.get_level_values(by) != ref] if by in (idx.names or []) else res
+    reasons, nothing = _empty_reasons(res, args, ref)
+    for line in reasons:
+        print(f"logstats: {'error' if nothing else 'warning'}: {args.table}: no fold change for {line}",
+              file=sys.stderr)
+    if nothing:
+        print(f"logstats: error: {args.table}: nothing could be computed ({len(reasons)} comparison(s), "
+              "all empty)", file=sys.stderr)
+        return EXIT_DATA
     cols = ["ratio", "ci_low", "ci_high", "p_value", "p_adjusted", "n", "n_reference"]
     if args.replicate is not None:
         cols += ["n_cells", "n_cells_reference"]
     if eq is not None:
         cols += ["equivalence_p", "equivalent"]
+    names = {c: count_label(c, unit_name=args.unit_name) for c in res.columns}
+    res = res.rename(columns=names)
+    cols = [names.get(c, c) for c in cols]
     _emit(res, args, columns=cols if not args.all_columns else None)
-    _save_plots(args, values, lambda v: _plot().groups(df, v, by=args.by, replicate=args.replicate,
+    if args.replicate is not None and args.output is None:
+        rows = names.get("n_cells", "n_values")
+        _note(args, f"n and n_reference count {args.replicate} (the units); {rows} and {rows}_reference "
+                    "count rows")
+    _save_plots(args, values, lambda v: _plot().groups(df, v, by=_plot_key(df, keys),
+                                                        replicate=args.replicate,
                                                         nonpositive=args.nonpositive, units=args.units,
                                                         confidence_level=args.confidence_level))
     return EXIT_OK
 
 
 def _cmd_fit(args: argparse.Namespace) -> int:
-    df, values = _load(args)
+    df, values, keys = _load(args)
+    df = in_data_order(df, keys)
     dl = _detection_limit(args.detection_limit, df, args.table)
     kw: dict[str, Any] = {"columns": _one_or_many(values)}
     if dl is not None:
         kw["detection_limit"] = dl
     else:
         kw["nonpositive"] = args.nonpositive
-    res = df.logstats.fit(by=args.by, **kw)
+    args.progress("log-normal fits")
+    res = df.logstats.fit(by=_by(keys), **kw)
     if isinstance(res, pd.Series):
         res = res.to_frame().T
         res.index = pd.Index(values, name="variable")
     _emit(res, args, columns=["mu", "sigma", "n", "n_censored", "loglik", "converged"]
           if not args.all_columns else None)
-    _save_plots(args, values, lambda v: _plot().hist(df, v, by=args.by, layout="panels",
+    _save_plots(args, values, lambda v: _plot().hist(df, v, by=_plot_key(df, keys), layout="panels",
                                                       detection_limit=dl, nonpositive=args.nonpositive,
                                                       units=args.units))
     return EXIT_OK
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
-    df, values = _load(args)
-    res = df.logstats.scale_check(by=args.by, columns=_one_or_many(values), nonpositive=args.nonpositive)
+    df, values, keys = _load(args)
+    df = in_data_order(df, keys)
+    args.progress("scale check")
+    res = df.logstats.scale_check(by=_by(keys), columns=_one_or_many(values), nonpositive=args.nonpositive)
     if isinstance(res, pd.Series):
         res = res.to_frame().T
         res.index = pd.Index(values, name="variable")
     _emit(res, args, columns=["aic_normal", "aic_lognormal", "delta_aic", "preferred", "normality_test",
                               "normality_p_linear", "normality_p_log", "mean_ratio", "expected_ratio"]
           if not args.all_columns else None)
-    _save_plots(args, values, lambda v: _plot().qq(df, v, by=args.by, nonpositive=args.nonpositive,
-                                                    units=args.units))
+    _save_plots(args, values, lambda v: _plot().qq(df, v, by=_plot_key(df, keys),
+                                                    nonpositive=args.nonpositive, units=args.units))
     return EXIT_OK
 
 
 def _cmd_report(args: argparse.Namespace) -> int:
-    df, values = _load(args)
+    df, values, keys = _load(args)
     ref = None
     if args.reference is not None:
-        if args.by is None:
+        if not keys:
             raise UsageError("--reference needs --by (the column whose levels are compared)")
         try:
-            df, ref = _order_levels(df, args.by, args.reference)
+            df, ref = _order_levels(df, keys[0], args.reference)
         except DataError as exc:
             raise DataError(f"{args.table}: {exc}") from None
-    if args.replicate is not None and args.by is None:
+    if args.replicate is not None and not keys:
         raise UsageError("--replicate needs --by")
     dl = _detection_limit(args.detection_limit, df, args.table)
     from logstats.report import build_report
 
-    build_report(df, value=_one_or_many(values), by=args.by, replicate=args.replicate, reference=ref,
+    build_report(df, value=_one_or_many(values), by=_by(keys), replicate=args.replicate, reference=ref,
                  path=args.output, detection_limit=dl, nonpositive=args.nonpositive,
                  confidence_level=args.confidence_level, units=args.units, title=args.title,
-                 source=args.table, adjust=None if args.adjust == "none" else args.adjust)
-    print(f"logstats: wrote {args.output}", file=sys.stderr)
+                 source=args.table, adjust=None if args.adjust == "none" else args.adjust,
+                 unit_name=args.unit_name, command=args.command_line, progress=args.progress)
+    _note(args, f"wrote {args.output}")
     return EXIT_OK
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
     from logstats.demo import run_demo
 
-    run_demo(args.out, seed=args.seed, write_files=not args.no_files, ascii=_wants_ascii(args),
-             width=_width())
+    if args.out is not None:
+        if args.output is not None and args.output != args.out:
+            raise UsageError("--out is the old name of --output; give one of them")
+        _note(args, "--out is deprecated; use --output (the same folder)")
+    out = args.output or args.out or "logstats-demo"
+    run_demo(out, seed=args.seed, write_files=not args.no_files, ascii=_wants_ascii(args),
+             width=_width(), progress=args.progress)
     return EXIT_OK
 
 
@@ -455,7 +778,7 @@ def _dpi(text: str) -> int:
     except ValueError as exc:
         raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from exc
     if not 20 <= v <= 1200:
-        raise argparse.ArgumentTypeError("--dpi must be between 20 and 1200")
+        raise argparse.ArgumentTypeError(f"--dpi must be between 20 and 1200, not {v}")
     return v
 
 
@@ -465,8 +788,14 @@ def _digits(text: str) -> int:
     except ValueError as exc:
         raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from exc
     if not 1 <= v <= 15:
-        raise argparse.ArgumentTypeError("--digits must be between 1 and 15")
+        raise argparse.ArgumentTypeError(f"--digits must be between 1 and 15, not {v}")
     return v
+
+
+def _decimal(text: str) -> str:
+    if text not in (".", ","):
+        raise argparse.ArgumentTypeError(f"{text!r}: the decimal mark is '.' or ','")
+    return text
 
 
 _EXAMPLES = {
@@ -477,7 +806,11 @@ _EXAMPLES = {
     "check": "logstats check cells.csv --value reporter --by treatment --nonpositive drop --plot qq.png",
     "report": ("logstats report cells.csv --value reporter --by treatment --replicate well "
                "--reference vehicle --nonpositive drop -o report.html"),
-    "demo": "logstats demo --out logstats-demo --seed 7",
+    "demo": "logstats demo --output logstats-demo --seed 7",
+}
+_LAB_EXAMPLE = {
+    "summary": 'logstats summary export.csv --value "conc (mg/L)" --by site --by month',
+    "report": "logstats report plate.xlsx --sheet 2 --value signal --by arm --by day -o report.html",
 }
 
 
@@ -486,22 +819,44 @@ def _wrap(text: str) -> str:
 
 
 def _epilog(name: str) -> str:
-    return f"example:\n  {_EXAMPLES[name]}\n\nexit codes: 0 success, 1 data error, 2 usage error"
+    extra = f"\n  {_LAB_EXAMPLE[name]}" if name in _LAB_EXAMPLE else ""
+    return (f"example:\n  {_EXAMPLES[name]}{extra}\n\n"
+            "exit codes: 0 success, 1 data error (or nothing could be computed), 2 usage error")
 
 
-def _add_input(p: argparse.ArgumentParser, *, by_required: bool = False) -> None:
-    p.add_argument("table", help="input table: .csv, .tsv or .parquet (optionally .gz); '-' reads CSV "
-                                 "from standard input")
-    p.add_argument("--format", choices=("csv", "tsv", "parquet"), default=None,
+def _add_common(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--quiet", "-q", action="store_true",
+                   help="no progress or information lines on standard error (warnings and errors stay)")
+
+
+def _add_input(p: argparse.ArgumentParser, *, by_required: bool = False, by_help: str | None = None) -> None:
+    p.add_argument("table", help="input table: .csv, .tsv, .parquet or .xlsx (text optionally .gz); '-' "
+                                 "reads CSV from standard input")
+    p.add_argument("--format", choices=_FORMATS, default=None,
                    help="table format when the extension does not tell")
+    p.add_argument("--sep", metavar="CHAR", default=None,
+                   help="field delimiter of a text table: ',', ';', '|' or tab (default: detected from "
+                        "the first lines, ',' unless the file clearly uses another)")
+    p.add_argument("--decimal", type=_decimal, metavar="MARK", default=None,
+                   help="decimal mark of a text table, '.' or ',' (default: ',' when the file is not "
+                        "comma-separated and its numbers are written 7,4; else '.')")
+    p.add_argument("--encoding", metavar="NAME", default=None,
+                   help="text encoding of the table (default utf-8; Windows and Excel exports are often "
+                        "cp1252)")
+    p.add_argument("--sheet", metavar="NAME|NUMBER", default=None,
+                   help="sheet of an .xlsx workbook, by name or number from 1 (default the first)")
     p.add_argument("--value", action="append", required=True, metavar="COLUMN",
-                   help="value column(s): repeat the option or give a comma list")
-    p.add_argument("--by", required=by_required, metavar="COLUMN",
-                   help="group column (e.g. treatment)" + ("" if by_required else "; optional"))
+                   help="value column; repeat the option for several (a name with commas, quotes or "
+                        "units works as written; 'a,b' is split only when no column is named 'a,b' "
+                        "and both parts are columns)")
+    p.add_argument("--by", action="append", required=by_required, metavar="COLUMN",
+                   help=(by_help or "group column (e.g. treatment); repeat for several keys")
+                   + ("" if by_required else "; optional"))
     p.add_argument("--nonpositive", choices=("raise", "drop", "nan"), default="raise",
                    help="zeros and negatives: refuse them (default), drop them (counted in "
                         "n_nonpositive) or make the group's result NaN")
-    p.add_argument("--units", default=None, help="units of the values, for figure axes")
+    p.add_argument("--units", default=None, help="units of the values, for figure axes (e.g. 'mg/L')")
+    _add_common(p)
 
 
 def _add_output(p: argparse.ArgumentParser, *, plot_help: str) -> None:
@@ -516,6 +871,12 @@ def _add_output(p: argparse.ArgumentParser, *, plot_help: str) -> None:
     p.add_argument("--all-columns", action="store_true", help="show every result column")
 
 
+def _add_unit_name(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--unit-name", metavar="NAME", default=None,
+                   help="what one row is (cells, samples, days): count columns are then named "
+                        "n_NAME (default n_values)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser of the ``logstats`` command."""
     fmt = argparse.RawDescriptionHelpFormatter
@@ -523,20 +884,23 @@ def build_parser() -> argparse.ArgumentParser:
         prog="logstats",
         description=_wrap("Log-scale statistics for right-skewed, log-normal-like measurements: geometric "
                     "means ×/÷ spreads, fold changes with the replicate as the unit, censored fits "
-                    "and the linear-vs-log scale check, on CSV, TSV and Parquet tables."),
+                    "and the linear-vs-log scale check, on CSV, TSV, Parquet and Excel tables."),
         epilog="examples:\n  logstats demo\n  " + _EXAMPLES["summary"] + "\n  " + _EXAMPLES["compare"]
                + "\n\nrun 'logstats SUBCOMMAND --help' for the options of each.",
         formatter_class=fmt,
     )
-    parser.add_argument("--version", action="version", version=f"logstats {logstats.__version__}")
-    sub = parser.add_subparsers(dest="command", metavar="SUBCOMMAND", required=True)
+    parser.add_argument("--version", action="version", version=f"logstats {logstats.__version__}",
+                        help="show the version and exit")
+    sub = parser.add_subparsers(dest="command", metavar="SUBCOMMAND", required=True,
+                                help="what to do (each has its own --help)")
 
     p = sub.add_parser("summary", help="geometric mean ×/÷ GSD and its confidence interval per group",
                        description=_wrap("Geometric mean, geometric SD and the t confidence interval of the "
                                    "geometric mean, per group of --by."),
                        epilog=_epilog("summary"), formatter_class=fmt)
     _add_input(p)
-    p.add_argument("--confidence-level", type=_level, default=0.95, help="default 0.95")
+    p.add_argument("--confidence-level", type=_level, default=0.95,
+                   help="confidence level of the interval (default 0.95)")
     p.add_argument("--linear", action="store_true", help="add the linear-scale median, mean and SD")
     _add_output(p, plot_help="log-binned histograms with the fitted densities")
     p.set_defaults(func=_cmd_summary, subparser=p)
@@ -545,21 +909,26 @@ def build_parser() -> argparse.ArgumentParser:
                        description=_wrap(
                            "Ratio of geometric means of every level of --by against --reference, with "
                            "confidence interval and p-value (Welch's t on the logs). With --replicate "
-                           "the replicate (well, animal, day), not the cell, is the unit."),
+                           "the replicate (well, animal, day), not the cell, is the unit. A second --by "
+                           "stratifies: the levels of the first are compared within each of its levels."),
                        epilog=_epilog("compare"), formatter_class=fmt)
-    _add_input(p, by_required=True)
-    p.add_argument("--reference", required=True, metavar="LEVEL", help="the level compared against")
+    _add_input(p, by_required=True,
+               by_help="the column whose levels are compared; a second --by compares within its levels")
+    p.add_argument("--reference", required=True, metavar="LEVEL",
+                   help="the level of the first --by compared against (e.g. vehicle)")
     p.add_argument("--replicate", metavar="COLUMN", default=None,
                    help="replicate column: its geometric means are the units")
     p.add_argument("--paired", action="store_true",
                    help="pair replicates sharing a label with the reference's (needs --replicate)")
     p.add_argument("--equal-var", action="store_true", help="Student's pooled t instead of Welch's")
     p.add_argument("--adjust", choices=("holm", "bh", "none"), default="holm",
-                   help="multiplicity adjustment (default holm)")
+                   help="multiplicity adjustment of the p-values (default holm)")
     p.add_argument("--equivalence", metavar="LOW,HIGH", default=None,
                    help="equivalence limits on the ratio, e.g. 0.8,1.25 (two one-sided tests)")
-    p.add_argument("--confidence-level", type=_level, default=0.95, help="default 0.95")
+    p.add_argument("--confidence-level", type=_level, default=0.95,
+                   help="confidence level of the intervals (default 0.95)")
     p.add_argument("--keep-reference", action="store_true", help="keep the reference's own row")
+    _add_unit_name(p)
     _add_output(p, plot_help="every value with replicate means and geometric mean ×/÷ CI per group")
     p.set_defaults(func=_cmd_compare, subparser=p)
 
@@ -584,16 +953,23 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=_cmd_check, subparser=p)
 
     p = sub.add_parser("report", help="one self-contained HTML report of the whole analysis",
-                       description=_wrap("Overview, scale check, summary, comparisons, figures, methods and "
-                                   "cautions in one HTML file with the figures embedded (no network)."),
+                       description=_wrap("Overview, scale check, summary, comparisons, figures, methods, "
+                                   "cautions and provenance (date, command, versions, input checksum) "
+                                   "in one HTML file with the figures embedded (no network)."),
                        epilog=_epilog("report"), formatter_class=fmt)
-    _add_input(p)
-    p.add_argument("--replicate", metavar="COLUMN", default=None)
-    p.add_argument("--reference", metavar="LEVEL", default=None)
-    p.add_argument("--detection-limit", metavar="NUMBER|COLUMN", default=None)
-    p.add_argument("--confidence-level", type=_level, default=0.95)
-    p.add_argument("--adjust", choices=("holm", "bh", "none"), default="holm")
-    p.add_argument("--title", default=None)
+    _add_input(p, by_help="group column; repeat for several keys (the first is the one compared)")
+    p.add_argument("--replicate", metavar="COLUMN", default=None,
+                   help="replicate column (well, animal, day): comparisons use its means as the units")
+    p.add_argument("--reference", metavar="LEVEL", default=None,
+                   help="level of the first --by the others are compared with (no comparisons without)")
+    p.add_argument("--detection-limit", metavar="NUMBER|COLUMN", default=None,
+                   help="detection limit: adds the censored fit and the count of non-detects")
+    p.add_argument("--confidence-level", type=_level, default=0.95,
+                   help="confidence level of the intervals (default 0.95)")
+    p.add_argument("--adjust", choices=("holm", "bh", "none"), default="holm",
+                   help="multiplicity adjustment of the comparisons (default holm)")
+    p.add_argument("--title", default=None, help="title of the report (default names the values)")
+    _add_unit_name(p)
     p.add_argument("--output", "-o", metavar="FILE.html", default="report.html",
                    help="where to write the report (default report.html)")
     p.set_defaults(func=_cmd_report, subparser=p)
@@ -604,11 +980,13 @@ def build_parser() -> argparse.ArgumentParser:
                            "~1,500 cells), prints the key tables and writes the table, figures, report "
                            "and imaging stack."),
                        epilog=_epilog("demo"), formatter_class=fmt)
-    p.add_argument("--out", default="logstats-demo", metavar="DIR",
+    p.add_argument("--output", "-o", default=None, metavar="DIR",
                    help="output folder (default ./logstats-demo)")
+    p.add_argument("--out", default=None, metavar="DIR", help="deprecated name of --output")
     p.add_argument("--seed", type=int, default=2024, help="random seed (default 2024)")
     p.add_argument("--no-files", action="store_true", help="print the tables only, write nothing")
-    p.add_argument("--ascii", action="store_true", help="plain ASCII output")
+    p.add_argument("--ascii", action="store_true", help="plain ASCII output ('x/' for '×/÷')")
+    _add_common(p)
     p.set_defaults(func=_cmd_demo, subparser=p)
     return parser
 
@@ -623,10 +1001,13 @@ def _usage_checks(args: argparse.Namespace) -> None:
         raise UsageError("--paired needs --replicate (the label that pairs replicates)")
     if args.command == "compare":
         _parse_equivalence(args.equivalence)
+    if getattr(args, "sep", None) is not None:
+        _separator(args.sep)
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the ``logstats`` command line; returns the exit code (0 ok, 1 data error, 2 usage error)."""
+    argv = list(sys.argv[1:] if argv is None else argv)
     parser = build_parser()
     try:
         args, extra = parser.parse_known_args(argv)
@@ -635,7 +1016,9 @@ def main(argv: Sequence[str] | None = None) -> int:
             sub.error(f"unrecognized arguments: {' '.join(extra)}")
     except SystemExit as exc:  # --help, --version, or an argparse usage error
         return int(exc.code) if isinstance(exc.code, int) else (0 if exc.code is None else EXIT_USAGE)
-    where = getattr(args, "table", None) or getattr(args, "out", None) or "logstats"
+    args.command_line = "logstats " + shlex.join(argv)
+    args.progress = _Progress(not args.quiet and sys.stderr.isatty())
+    where = getattr(args, "table", None) or getattr(args, "output", None) or "logstats"
     where = "<stdin>" if where == "-" else where
     try:
         _usage_checks(args)

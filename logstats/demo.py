@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import importlib.util
 import sys
+from collections.abc import Callable
 from pathlib import Path
 from typing import IO, Any, Literal
 
@@ -180,7 +181,8 @@ def _netcdf_engine() -> Literal["netcdf4", "scipy"] | None:
 
 
 def run_demo(out: str | Path = "logstats-demo", *, seed: int = 2024, write_files: bool = True,
-             stream: IO[str] | None = None, ascii: bool = False, width: int | None = None) -> list[Path]:
+             stream: IO[str] | None = None, ascii: bool = False, width: int | None = None,
+             progress: Callable[[str], None] | None = None) -> list[Path]:
     """Generate the invented data, print the key tables and (optionally) write every output file.
 
     Prints: the summary of ``reporter`` by treatment (its values at or below zero dropped with
@@ -202,6 +204,9 @@ def run_demo(out: str | Path = "logstats-demo", *, seed: int = 2024, write_files
         Plain ASCII tables (``x/`` for ``×/÷``).
     width : int, optional
         Line width for the tables.
+    progress : callable, optional
+        Called with a short text before each step that takes a while (the command line prints these
+        on standard error when it is a terminal).
 
     Returns
     -------
@@ -220,6 +225,8 @@ def run_demo(out: str | Path = "logstats-demo", *, seed: int = 2024, write_files
         say(format_table(df, columns=cols, ascii=ascii, width=width))
         say()
 
+    step = progress if progress is not None else (lambda text: None)
+    step("generating the invented screen")
     df = make_cells(seed=seed)
     say(INVENTED_NOTE)
     say(f"{len(df)} cells in {df['well'].nunique()} wells, treatments: {', '.join(TREATMENTS)} "
@@ -227,6 +234,7 @@ def run_demo(out: str | Path = "logstats-demo", *, seed: int = 2024, write_files
     say()
 
     acc = df.logstats
+    step("summary, fold changes, scale check and censored fit")
     summ = acc.summary(by="treatment", columns="reporter", nonpositive="drop", linear=True)
     n_np = int(summ["n_nonpositive"].sum())
     say(f"reporter by treatment: nonpositive='drop' left out {n_np} background-subtracted value(s) at "
@@ -266,17 +274,21 @@ def run_demo(out: str | Path = "logstats-demo", *, seed: int = 2024, write_files
     csv = out_dir / "cells.csv"
     df.to_csv(csv, index=False)
     written.append(csv)
+    step("drawing the figures")
     written.extend(_figures(df, out_dir))
     from logstats.report import build_report
 
     report = out_dir / "report.html"
     build_report(df, value="reporter", by="treatment", replicate="well", reference="vehicle",
-                 nonpositive="drop", path=report, units="a.u.",
-                 title="logstats demo: invented reporter-fluorescence screen", note=INVENTED_NOTE)
+                 nonpositive="drop", path=report, units="a.u.", unit_name="cells",
+                 title="logstats demo: invented reporter-fluorescence screen", note=INVENTED_NOTE,
+                 source=f"invented data, make_cells(seed={seed})",
+                 command=f"logstats.demo.run_demo({str(out)!r}, seed={seed})", progress=progress)
     written.append(report)
     engine = _netcdf_engine()
     if engine is not None:
         nc = out_dir / "stack.nc"
+        step("writing the imaging stack")
         make_stack(seed=seed).to_netcdf(nc, engine=engine)
         written.append(nc)
     else:

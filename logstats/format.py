@@ -20,6 +20,7 @@ and clues. BioScience 51:341-352 (the ×/÷ notation, "times/divide").
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Hashable, Sequence
 from typing import Any
 
@@ -29,6 +30,8 @@ import pandas as pd
 __all__ = [
     "TIMES_DIVIDE",
     "TIMES_DIVIDE_ASCII",
+    "count_label",
+    "data_order",
     "format_column",
     "format_factor",
     "format_interval",
@@ -36,7 +39,9 @@ __all__ = [
     "format_p",
     "format_table",
     "format_times_divide",
+    "in_data_order",
     "is_text_column",
+    "joined_key",
 ]
 
 #: The ×/÷ sign, and its ASCII fallback.
@@ -210,7 +215,8 @@ def _column_kind(name: Hashable, s: pd.Series) -> str:
         return "bool"
     if key in _P_COLUMNS or key.startswith("p_"):
         return "p"
-    if key in _COUNT_COLUMNS or pd.api.types.is_integer_dtype(s.dtype):
+    if (key in _COUNT_COLUMNS or pd.api.types.is_integer_dtype(s.dtype)
+            or (key.startswith("n_") and pd.api.types.is_numeric_dtype(s.dtype))):
         return "count"
     if key in _FACTOR_COLUMNS:
         return "factor"
@@ -405,3 +411,126 @@ def _blocks(index: list[_Column], body: list[_Column], width: int | None) -> lis
         blocks[-1].append(c)
         used += need
     return blocks
+
+
+# --------------------------------------------------------------------------------------------------
+# the order of groups and what a count counts
+
+
+_MONTHS = ("january", "february", "march", "april", "may", "june", "july", "august", "september",
+           "october", "november", "december")
+_WEEKDAYS = ("monday", "tuesday", "wednesday", "thursday", "friday", "saturday", "sunday")
+_CALENDARS = tuple(
+    {**{n: i for i, n in enumerate(names)}, **{n[:3]: i for i, n in enumerate(names)}, **extra}
+    for names, extra in ((_MONTHS, {"sept": 8}), (_WEEKDAYS, {"tues": 1, "thur": 3, "thurs": 3}))
+)
+
+
+def _natural_key(text: str) -> tuple[tuple[int, int, str], ...]:
+    """Sort key reading digit runs as numbers: ``"well 2" < "well 10"``, case ignored."""
+    return tuple((0, int(part), "") if part.isdigit() else (1, 0, part.casefold())
+                 for part in re.split(r"(\d+)", text) if part)
+
+
+def data_order(values: Any) -> list[Any]:
+    """The levels of a group key in the order tables, figures and reports show them.
+
+    One rule everywhere in the face: a categorical key keeps the order of its categories (those
+    present); a numeric or date key is in ascending order (``2 < 10``, months ``5 < 6 < 7``); a text
+    key whose levels are all month names (or all weekday names, full or abbreviated, English) is in
+    calendar order, so ``June, July, August`` never becomes ``August, July, June``; any other text
+    key is in natural order: alphabetical with digit runs read as numbers (``"dish 2" < "dish 10"``,
+    ``"B02" < "B10"``), case ignored. Missing keys are left out.
+
+    Examples
+    --------
+    >>> data_order(["June", "July", "August", "June"])
+    ['June', 'July', 'August']
+    >>> data_order([10, 2, 2, 33])
+    [2, 10, 33]
+    >>> data_order(["dish 10", "dish 2", "Dish 1"])
+    ['Dish 1', 'dish 2', 'dish 10']
+    """
+    s = values if isinstance(values, pd.Series) else pd.Series(values)
+    if isinstance(s.dtype, pd.CategoricalDtype):
+        present = pd.unique(s.cat.codes[s.cat.codes >= 0].to_numpy())
+        return [s.cat.categories[i] for i in sorted(int(c) for c in present)]
+    uniq = list(pd.unique(s.dropna()))
+    numeric = pd.api.types.is_numeric_dtype(s.dtype) and not pd.api.types.is_bool_dtype(s.dtype)
+    if numeric or pd.api.types.is_datetime64_any_dtype(s.dtype) or pd.api.types.is_bool_dtype(s.dtype):
+        uniq = sorted(uniq)
+    else:
+        folded = [str(v).strip().casefold().rstrip(".") for v in uniq]
+        calendar = next((c for c in _CALENDARS if folded and all(f in c for f in folded)), None)
+        if calendar is not None:
+            order = sorted(range(len(uniq)), key=lambda i: (calendar[folded[i]], _natural_key(str(uniq[i]))))
+        else:
+            order = sorted(range(len(uniq)), key=lambda i: (_natural_key(str(uniq[i])), str(uniq[i])))
+        uniq = [uniq[i] for i in order]
+    return [v.item() if isinstance(v, (np.integer, np.floating)) else v for v in uniq]
+
+
+def in_data_order(df: pd.DataFrame, keys: Sequence[Hashable]) -> pd.DataFrame:
+    """``df`` with each key column a categorical in :func:`data_order` (``df`` itself is untouched).
+
+    The accessors keep a categorical key's order, so every table drawn from the result follows it.
+    Keys that already are categorical are left as they are.
+    """
+    new = {k: pd.Categorical(df[k], categories=data_order(df[k])) for k in keys
+           if not isinstance(df[k].dtype, pd.CategoricalDtype)}
+    if not new:
+        return df
+    out = df.copy(deep=False)
+    for k, v in new.items():
+        out[k] = v
+    return out
+
+
+def joined_key(df: pd.DataFrame, keys: Sequence[Hashable], *, sep: str = " / ") -> pd.Series:
+    """One group key from several columns: labels ``"5 / first half"``, ordered key by key.
+
+    The combinations present in the data, ordered by the first key's :func:`data_order`, then the
+    second's, and so on; a row missing any key gets a missing label. The Series is named after the
+    keys joined by ``sep`` and is aligned with ``df``.
+
+    Examples
+    --------
+    >>> df = pd.DataFrame({"m": ["June", "May", "June"], "h": [2, 1, 1]})
+    >>> list(joined_key(df, ["m", "h"]).cat.categories)
+    ['May / 1', 'June / 1', 'June / 2']
+    """
+    keys = list(keys)
+    cats = [pd.Categorical(df[k], categories=data_order(df[k])) for k in keys]
+    codes = pd.DataFrame({i: c.codes for i, c in enumerate(cats)})
+    valid = (codes >= 0).all(axis=1).to_numpy()
+    combos = codes[valid].drop_duplicates().sort_values(list(codes.columns))
+    labels = [sep.join(str(cats[i].categories[c]) for i, c in enumerate(row))
+              for row in combos.itertuples(index=False)]
+    pos = pd.MultiIndex.from_frame(combos).get_indexer(pd.MultiIndex.from_frame(codes))
+    pos = np.where(valid, pos, -1)
+    return pd.Series(pd.Categorical.from_codes(pos, categories=labels), index=df.index,
+                     name=sep.join(map(str, keys)))
+
+
+def count_label(column: str, *, unit_name: str | None = None) -> str:
+    """The header shown for a count of values in a comparison: say what is counted.
+
+    ``n_cells``/``n_cells_reference`` (the library's names for the values counted beside the
+    replicates) become ``n_values``/``n_values_reference``, or ``n_<unit_name>`` when the user names
+    what one row is (``unit_name="cells"``, ``"days"``). Other columns are returned unchanged.
+
+    Examples
+    --------
+    >>> count_label("n_cells")
+    'n_values'
+    >>> count_label("n_cells_reference", unit_name="days")
+    'n_days_reference'
+    >>> count_label("n")
+    'n'
+    """
+    unit = re.sub(r"\W+", "_", unit_name.strip()).strip("_") if unit_name else "values"
+    if column == "n_cells":
+        return f"n_{unit or 'values'}"
+    if column == "n_cells_reference":
+        return f"n_{unit or 'values'}_reference"
+    return column

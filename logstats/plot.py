@@ -6,8 +6,13 @@ on. matplotlib is an optional dependency (``pip install 'logstats[plot]'``) impo
 functions. The estimates drawn (fits, geometric means, intervals) come from the ``.logstats``
 accessors; this module only arranges them.
 
-Colours follow matplotlib's default colour cycle, or with ``palette="colorblind"`` the eight colours
-of Okabe & Ito (2008), distinguishable with the common forms of colour-vision deficiency.
+Colours are by default the eight of Okabe & Ito (2008), distinguishable with the common forms of
+colour-vision deficiency; ``palette="default"`` gives matplotlib's colour cycle instead.
+
+Log axes are labelled in plain numbers (``40, 60, 100, 200``, not ``4 x 10^1``): every log axis
+gets :func:`readable_log_axis`, whose labels adapt to the span shown (powers of ten; 2-3-5 and more
+in-between labels when few powers of ten are in view; evenly spaced plain numbers over less than
+about half a decade). Group labels that would collide are wrapped and turned (:func:`groups`).
 
 References
 ----------
@@ -31,8 +36,9 @@ import pandas as pd
 from scipy import stats
 
 import logstats
+from logstats.format import data_order
 
-__all__ = ["OKABE_ITO", "groups", "hist", "plot_groups", "plot_hist", "plot_qq", "qq"]
+__all__ = ["OKABE_ITO", "groups", "hist", "plot_groups", "plot_hist", "plot_qq", "qq", "readable_log_axis"]
 
 #: Okabe & Ito (2008) colour-blind-safe palette, the pale yellow moved towards the end (blue, orange,
 #: bluish green, vermillion, reddish purple, sky blue, yellow, black).
@@ -41,6 +47,7 @@ OKABE_ITO: tuple[str, ...] = (
 )
 
 _POLICIES = ("raise", "drop", "nan")
+_MARKERS = (".", "^", "s", "D")  # beyond the palette's eight colours, groups differ by marker too
 _CLOUD_OFFSET = 0.1  # the points of group i are centred at i - 0.1 ...
 _EST_OFFSET = 0.3  # ... and its estimate with its interval drawn at i + 0.3
 
@@ -61,19 +68,22 @@ class _Data:
 
     @property
     def label(self) -> str:
-        return f"{self.value} ({self.units})" if self.units else str(self.value)
+        if not self.units or str(self.value).rstrip().endswith(f"({self.units})"):
+            return str(self.value)  # "Ozone (ppb)" with units="ppb" is not "Ozone (ppb) (ppb)"
+        return f"{self.value} ({self.units})"
 
     def group_labels(self) -> list[Any]:
         if self.by is None:
             return [None]
-        _, uniques = pd.factorize(self.frame[self.by], sort=True)
-        return list(uniques)
+        return data_order(self.frame[self.by])
 
     def group_masks(self) -> list[tuple[Any, np.ndarray]]:
         if self.by is None:
             return [(None, np.ones(len(self.frame), dtype=bool))]
-        codes, uniques = pd.factorize(self.frame[self.by], sort=True)
-        return [(g, codes == i) for i, g in enumerate(uniques)]
+        key = self.frame[self.by]
+        levels = data_order(key)
+        codes = pd.Categorical(key, categories=levels).codes
+        return [(g, codes == i) for i, g in enumerate(levels)]
 
 
 def _aligned_key(obj: pd.Series | pd.DataFrame, key: Any, keyword: str) -> tuple[str, pd.Series]:
@@ -200,11 +210,11 @@ def _palette(palette: str | Sequence[Any] | None) -> list[str]:
     """The colours to cycle through, as hex strings (so one colour is never read as RGB values)."""
     from matplotlib.colors import to_hex
 
-    if palette is None or palette == "default":
+    if palette == "default":
         import matplotlib as mpl
 
         colours = list(mpl.rcParams["axes.prop_cycle"].by_key().get("color", OKABE_ITO))
-    elif isinstance(palette, str) and palette in ("colorblind", "okabe-ito"):
+    elif palette is None or (isinstance(palette, str) and palette in ("colorblind", "okabe-ito")):
         colours = list(OKABE_ITO)
     elif isinstance(palette, str):
         raise ValueError(f"palette={palette!r} is not 'default', 'colorblind' or a list of colours")
@@ -273,6 +283,148 @@ def _finish_axes(ax: Any) -> None:
 
 
 # --------------------------------------------------------------------------------------------------
+# readable axes
+
+
+def _plain(x: float) -> str:
+    """A tick value as a plain number: ``40``, ``0.05``, ``2500``."""
+    text = f"{x:.6g}"
+    if "e" in text:  # only outside 1e-4 .. 1e6, where readable_log_axis uses powers of ten anyway
+        text = f"{x:f}".rstrip("0").rstrip(".")
+    return text
+
+
+def _decades(axis: Any) -> float:
+    lo, hi = sorted(axis.get_view_interval())
+    if not (lo > 0 and np.isfinite(hi) and hi > lo):
+        return np.inf
+    return float(np.log10(hi / lo))
+
+
+class _LogMajorLocator:
+    """Powers of ten; over less than about half a decade, evenly spaced plain values instead."""
+
+    def __new__(cls) -> Any:
+        from matplotlib import ticker
+
+        class Locator(ticker.Locator):
+            def __init__(self) -> None:
+                self._log = ticker.LogLocator(base=10.0)
+                self._lin = ticker.MaxNLocator(nbins=4, steps=[1, 2, 2.5, 5, 10])
+
+            def set_axis(self, axis: Any) -> None:
+                super().set_axis(axis)
+                self._log.set_axis(axis)
+                self._lin.set_axis(axis)
+
+            def __call__(self) -> Any:
+                axis: Any = self.axis
+                lo, hi = axis.get_view_interval()
+                return self.tick_values(lo, hi)
+
+            def tick_values(self, vmin: float, vmax: float) -> Any:
+                lo, hi = sorted((vmin, vmax))
+                if lo > 0 and hi / lo < 10 ** 0.6:
+                    ticks = np.asarray(self._lin.tick_values(lo, hi), dtype=float)
+                    return ticks[ticks > 0]
+                return self._log.tick_values(vmin, vmax)
+
+        return Locator()
+
+
+def _log_formatter(minor: bool) -> Any:
+    from matplotlib import ticker
+
+    sci = ticker.LogFormatterSciNotation()
+
+    class Formatter(ticker.Formatter):
+        def set_axis(self, axis: Any) -> None:
+            super().set_axis(axis)
+            sci.set_axis(axis)
+
+        def __call__(self, x: float, pos: int | None = None) -> str:
+            if not (x > 0 and np.isfinite(x)):
+                return ""
+            span = _decades(self.axis)
+            if minor:
+                if span < 0.6 or span > 2.05:  # narrow: the majors are plain values; wide: powers only
+                    return ""
+                mantissa = round(x / 10 ** np.floor(np.log10(x) + 1e-9), 6)
+                keep = (2.0, 5.0) if span > 1.4 else (2.0, 3.0, 5.0) if span > 1.0 else (2.0, 3.0, 4.0, 5.0,
+                                                                                        6.0, 8.0)
+                return _plain(x) if any(abs(mantissa - k) < 1e-6 for k in keep) else ""
+            if 1e-4 <= x < 1e6:
+                return _plain(x)
+            return sci(x, pos)
+
+    return Formatter()
+
+
+def readable_log_axis(axis: Any) -> None:
+    """Label a logarithmic matplotlib axis (``ax.xaxis`` / ``ax.yaxis``) in plain numbers.
+
+    Powers of ten are labelled ``0.1, 1, 10, 100`` (``10^k`` only outside 1e-4 to 1e6); when less
+    than about two decades are in view the in-between ticks 2 and 5 (1.4 to 2 decades), 2, 3 and 5
+    (1 to 1.4) or 2, 3, 4, 5, 6 and 8 (0.6 to 1 decade) are labelled too, so data from 40 to 200
+    read ``40, 50, 60, 80, 100, 200``; over less than 0.6 decades the ticks are evenly spaced plain
+    values (``120, 140, 160``). The rule is read from the view limits at draw time, so it follows
+    later changes of the limits.
+
+    Examples
+    --------
+    >>> from matplotlib.figure import Figure
+    >>> ax = Figure().subplots()
+    >>> _ = ax.plot([40, 200], [40, 200]); ax.set_yscale("log"); readable_log_axis(ax.yaxis)
+    >>> ax.figure.draw_without_rendering()
+    >>> lo, hi = ax.get_ylim()
+    >>> sorted({t.get_text() for t in ax.yaxis.get_ticklabels(which="both")
+    ...         if t.get_text() and lo <= t.get_position()[1] <= hi}, key=float)
+    ['40', '50', '60', '80', '100', '200']
+    """
+    from matplotlib import ticker
+
+    axis.set_major_locator(_LogMajorLocator())
+    axis.set_major_formatter(_log_formatter(minor=False))
+    axis.set_minor_locator(ticker.LogLocator(base=10.0, subs=tuple(np.arange(2.0, 10.0)), numticks=12))
+    axis.set_minor_formatter(_log_formatter(minor=True))
+
+
+def _renderer(fig: Any) -> Any:
+    fig.draw_without_rendering()  # runs the layout engine, so positions are final
+    get = getattr(fig.canvas, "get_renderer", None)
+    return get() if get is not None else fig._get_renderer()  # a pyplot-free Figure
+
+
+def _overlap(boxes: list[Any], pad: float = 1.0) -> bool:
+    boxes = sorted(boxes, key=lambda b: b.x0)
+    return any(b.x0 < a.x1 + pad for a, b in zip(boxes, boxes[1:]))
+
+
+def _declutter_group_labels(ax: Any, names: list[str], details: list[str]) -> None:
+    """Group tick labels that do not collide: as they are, else wrapped and turned, else smaller."""
+    import textwrap
+
+    fig = ax.figure
+    stages = [(None, 0, "small"), (14, 0, "small"), (14, 30, "small"), (12, 45, "x-small"),
+              (10, 90, "x-small")]
+    for width, rotation, size in stages:
+        labels = []
+        for name, extra in zip(names, details):
+            text = name if width is None else "\n".join(textwrap.wrap(name, width) or [name])
+            if width is not None:
+                extra = extra.replace(", ", ",\n")
+            labels.append(text + (f"\n{extra}" if extra else ""))
+        ax.set_xticks(range(len(labels)))
+        ax.set_xticklabels(labels, fontsize=size, rotation=rotation,
+                           ha="center" if rotation == 0 else "right",
+                           rotation_mode="default" if rotation == 0 else "anchor")
+        renderer = _renderer(fig)
+        boxes = [t.get_window_extent(renderer) for t in ax.get_xticklabels() if t.get_visible()]
+        if not _overlap(boxes):
+            return
+
+
+# --------------------------------------------------------------------------------------------------
 # histogram
 
 
@@ -327,7 +479,7 @@ def hist(
     nonpositive : {"raise", "drop", "nan"}
         Zeros and negatives: refuse (naming the column and count), or leave them out (counted in
         the legend).
-    palette : "default", "colorblind" or list of colours, optional
+    palette : "colorblind" (default, Okabe & Ito 2008), "default" (matplotlib's cycle) or colours
     units : str, optional
         Units for the axis label (default: ``attrs["units"]`` of the data, if any).
     ax : matplotlib Axes or array of Axes, optional
@@ -442,7 +594,9 @@ def hist(
                 a.plot(xgrid, xgrid * stats.norm.pdf(xgrid, m, s) * curve_scale, color=c, linewidth=1.5,
                        linestyle="--", gid="normal-fit")
         if layout == "panels":
-            a.set_title(label, fontsize="small")
+            import textwrap
+
+            a.set_title("\n".join(textwrap.wrap(label, 34)) or label, fontsize="small")
     if detection_limit is not None:
         for i, (_g, mask) in enumerate(masks):
             a = axes[i] if layout == "panels" else axes[0]
@@ -454,10 +608,11 @@ def hist(
     used = axes[: len(masks)] if layout == "panels" else axes[:1]
     for a in used:
         a.set_xscale("log")
+        readable_log_axis(a.xaxis)
         _finish_axes(a)
-    for a in used:
-        if layout != "panels" or a.get_subplotspec() is None or a.get_subplotspec().is_last_row():
-            a.set_xlabel(f"{data.label}, log scale")
+    for a in used:  # every panel says what its x axis is; the y label stays on the first column
+        a.tick_params(axis="x", labelbottom=True)  # also under panels of a shared grid
+        a.set_xlabel(f"{data.label}, log scale", fontsize="small" if layout == "panels" else None)
         if layout != "panels" or a.get_subplotspec() is None or a.get_subplotspec().is_first_col():
             a.set_ylabel(ylabel)
     proxies = [Line2D([], [], color="0.2", linewidth=2.0, label="log-normal fit (MLE)")]
@@ -577,7 +732,8 @@ def groups(
         rep_codes, rep_uniques = pd.factorize(df[data.replicate], sort=True)
         rep_labels = list(rep_uniques)
         shared_colors = len(rep_labels) <= len(colors)
-    ticklabels = []
+    ticklabels: list[str] = []
+    names: list[str] = []
     for i, (g, mask) in enumerate(data.group_masks()):
         idx = np.flatnonzero(mask & usable)
         if max_points is not None and idx.size > max_points:
@@ -619,17 +775,16 @@ def groups(
         ax.plot([xe], [gm], marker="D", markersize=6, color="black", zorder=5, gid=f"estimate-{i}")
         n_cells = int(cells["n"].iloc[i])
         n_np = int(cells["n_nonpositive"].iloc[i])
-        line = f"{_group_name(g)}\n"
+        names.append(_group_name(g))
         if rep_s is not None:
-            line += f"{int(np.nan_to_num(est['n'].iloc[i]))} × {data.replicate}, {n_cells} values"
+            line = f"{int(np.nan_to_num(est['n'].iloc[i]))} × {data.replicate}, {n_cells} values"
         else:
-            line += f"n = {n_cells}"
+            line = f"{n_cells} values"
         if n_np:
             line += f"\n{n_np} ≤ 0 left out"
         ticklabels.append(line)
     ax.set_yscale("log")
-    ax.set_xticks(range(len(ticklabels)))
-    ax.set_xticklabels(ticklabels, fontsize="small")
+    readable_log_axis(ax.yaxis)
     ax.set_xlim(-0.5 - _CLOUD_OFFSET, len(ticklabels) - 0.5 + _CLOUD_OFFSET / 2)
     ax.set_ylabel(f"{data.label}, log scale")
     ax.set_xlabel(str(data.by))
@@ -646,6 +801,7 @@ def groups(
     handles.append(Line2D([], [], color="black", linewidth=1.8, marker="D", markersize=5, label=est_label))
     ax.legend(handles=handles, fontsize="small", frameon=False, loc="upper left", bbox_to_anchor=(1.0, 1.0))
     ax.set_title(title if title is not None else f"{data.value} by {data.by}", fontsize="medium")
+    _declutter_group_labels(ax, names, ticklabels)
     return ax
 
 
@@ -724,23 +880,28 @@ def qq(
         if yi.size >= 2:
             (osm, osr), (slope, intercept, _r) = stats.probplot(yi, dist="norm")
             keep = _thin(osm.size, max_points)
-            axes[0].plot(osm[keep], _exp(osr[keep]), ".", markersize=3, color=c, alpha=0.6,
-                         label=f"{_group_name(g)} (n = {yi.size})")
+            axes[0].plot(osm[keep], _exp(osr[keep]), _MARKERS[(i // len(colors)) % len(_MARKERS)],
+                         markersize=3, color=c, alpha=0.6, label=f"{_group_name(g)} ({yi.size} values)")
             axes[0].plot(osm[[0, -1]], _exp(intercept + slope * osm[[0, -1]]), color=c, linewidth=1.2)
         if raw:
             xi = x[mask & np.isfinite(x)]
             if xi.size >= 2:
                 (osm, osr), (slope, intercept, _r) = stats.probplot(xi, dist="norm")
                 keep = _thin(osm.size, max_points)
-                axes[1].plot(osm[keep], osr[keep], ".", markersize=3, color=c, alpha=0.6)
+                axes[1].plot(osm[keep], osr[keep], _MARKERS[(i // len(colors)) % len(_MARKERS)],
+                             markersize=3, color=c, alpha=0.6)
                 axes[1].plot(osm[[0, -1]], intercept + slope * osm[[0, -1]], color=c, linewidth=1.2)
     axes[0].set_yscale("log")
+    readable_log_axis(axes[0].yaxis)
     axes[0].set_xlabel("standard normal quantile")
     axes[0].set_ylabel(f"{data.label}, log scale")
     axes[0].set_title("logs: straight if log-normal", fontsize="medium")
     handles, _ = axes[0].get_legend_handles_labels()
-    if handles:
+    if handles and len(handles) <= 4:
         axes[0].legend(fontsize="small", frameon=False)
+    elif handles:  # many groups: beside the panels, not over the points
+        axes[-1 if raw else 0].legend(handles=handles, fontsize="small", frameon=False, loc="upper left",
+                                      bbox_to_anchor=(1.02, 1.0), markerscale=2.0)
     _finish_axes(axes[0])
     if raw:
         axes[1].set_yscale("linear")

@@ -10,9 +10,13 @@ Every text taken from the data is escaped with :func:`html.escape`.
 from __future__ import annotations
 
 import base64
+import datetime
+import hashlib
 import html
 import io
-from collections.abc import Hashable, Sequence
+import platform
+import sys
+from collections.abc import Callable, Hashable, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -20,13 +24,22 @@ import numpy as np
 import pandas as pd
 
 import logstats
-from logstats.format import TIMES_DIVIDE, format_column, format_times_divide, is_text_column
+from logstats.format import (
+    TIMES_DIVIDE,
+    count_label,
+    data_order,
+    format_column,
+    format_times_divide,
+    in_data_order,
+    is_text_column,
+    joined_key,
+)
 
 __all__ = ["REFERENCES", "SECTIONS", "build_report", "reference_first"]
 
 #: The ``id`` of every section, in order.
 SECTIONS: tuple[str, ...] = (
-    "overview", "scale-check", "summary", "comparisons", "figures", "methods", "cautions",
+    "overview", "scale-check", "summary", "comparisons", "figures", "methods", "cautions", "provenance",
 )
 
 #: The published sources named in the methods paragraph.
@@ -59,15 +72,22 @@ REFERENCES: tuple[str, ...] = (
 
 _STYLE = """
 body { font-family: system-ui, -apple-system, "Segoe UI", Helvetica, Arial, sans-serif; margin: 2em auto;
-       max-width: 62em; padding: 0 1em; color: #1d1d1d; line-height: 1.45; }
+       max-width: 72em; padding: 0 1em; color: #1d1d1d; line-height: 1.45; }
 h1 { font-size: 1.6em; margin-bottom: 0.2em; }
 h2 { font-size: 1.25em; border-bottom: 1px solid #ccc; padding-bottom: 0.2em; margin-top: 2em; }
 h3 { font-size: 1.05em; margin-bottom: 0.3em; }
-table { border-collapse: collapse; margin: 0.6em 0 1em 0; font-size: 0.9em; }
+div.table-wrap { max-width: 100%; overflow-x: auto; margin: 0.6em 0 1em 0; }
+table { border-collapse: collapse; font-size: 0.9em; }
+caption { text-align: left; color: #444; font-size: 0.9em; padding-bottom: 0.3em; }
+dl.prov { display: grid; grid-template-columns: max-content 1fr; gap: 0.2em 1em; font-size: 0.92em; }
+dl.prov dt { font-weight: 600; }
+dl.prov dd { margin: 0; overflow-wrap: anywhere; }
+dl.prov code { font-size: 0.95em; }
 th, td { padding: 0.25em 0.7em; border-bottom: 1px solid #e3e3e3; }
+th { white-space: nowrap; }
 th { background: #f3f3f3; text-align: left; font-weight: 600; }
 td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
-td.txt { text-align: left; }
+td.txt { text-align: left; white-space: nowrap; }
 p.note { background: #fff7e0; border-left: 4px solid #e0a000; padding: 0.5em 0.8em; }
 p.muted { color: #666; font-size: 0.9em; }
 figure { margin: 1em 0 2em 0; }
@@ -112,7 +132,7 @@ def _table(df: pd.DataFrame | pd.Series, *, columns: Sequence[str] | None = None
         head.append(str(c))
         body_cols.append((format_column(df[c], c, digits=digits),
                           "txt" if is_text_column(df[c], c) else "num"))
-    out = ["<table>"]
+    out = ['<div class="table-wrap"><table>']
     if caption:
         out.append(f"<caption>{_e(caption)}</caption>")
     out.append("<thead><tr>" + "".join(f"<th>{_e(h)}</th>" for h in head) + "</tr></thead>")
@@ -120,7 +140,7 @@ def _table(df: pd.DataFrame | pd.Series, *, columns: Sequence[str] | None = None
     for i in range(len(df)):
         out.append("<tr>" + "".join(f'<td class="{k}">{_e(cells[i])}</td>' for cells, k in body_cols)
                    + "</tr>")
-    out.append("</tbody></table>")
+    out.append("</tbody></table></div>")
     return "\n".join(out)
 
 
@@ -169,7 +189,7 @@ def build_report(
     df: pd.DataFrame,
     *,
     value: Hashable | Sequence[Hashable],
-    by: Hashable | None = None,
+    by: Hashable | Sequence[Hashable] | None = None,
     replicate: Hashable | None = None,
     reference: Any = None,
     path: str | Path | None = None,
@@ -178,10 +198,13 @@ def build_report(
     confidence_level: float = 0.95,
     adjust: str | None = "holm",
     units: str | None = None,
+    unit_name: str | None = None,
     title: str | None = None,
     note: str | None = None,
     source: str | None = None,
+    command: str | None = None,
     figures: bool = True,
+    progress: Callable[[str], None] | None = None,
 ) -> str:
     """Analyse ``df`` and return (and with ``path``, write) one self-contained HTML report.
 
@@ -189,8 +212,14 @@ def build_report(
     groups, and per value column the missing, non-positive and censored counts), the linear-vs-log
     scale check, the summary table (geometric mean ×/÷ GSD, its t interval, median, mean, SD), the
     fold changes against ``reference`` (with the replicate as the unit when ``replicate`` is given,
-    and the per-cell answer beside it), the figures (base64 PNG), a methods paragraph naming the
-    formulas and their published sources, and the cautions for clinical, regulatory or safety use.
+    and the per-row answer beside it), the figures (base64 PNG), a methods paragraph naming the
+    formulas and their published sources, the cautions for clinical, regulatory or safety use, and
+    the provenance (date, the command or call, versions, and the input file's size and SHA-256).
+
+    Groups appear in one order everywhere: a categorical key's category order, a numeric or date
+    key ascending, month or weekday names in calendar order, other text in natural order ("dish 2"
+    before "dish 10"; :func:`logstats.format.data_order`);
+    with a ``reference`` that level comes first. Wide tables scroll sideways inside the page.
 
     Parameters
     ----------
@@ -198,13 +227,15 @@ def build_report(
         One row per cell or sample. Not modified.
     value : column name or list of names
         The value column(s) analysed.
-    by : column name, optional
-        Group column (e.g. treatment). Needed for comparisons.
+    by : column name or list of names, optional
+        Group key(s) (e.g. treatment, or month and site). Needed for comparisons; with several keys
+        the levels of the first are compared within each combination of the others, and the
+        figures show one group per combination.
     replicate : column name, optional
         Experimental unit within each group (well, animal, day …); comparisons then use replicate
         means (Lord et al. 2020) and the figure shows them.
     reference : label, optional
-        The level of ``by`` the others are compared with.
+        The level of the first ``by`` key the others are compared with.
     path : path, optional
         Write the HTML here (UTF-8) as well as returning it.
     detection_limit : number or column name, optional
@@ -216,11 +247,21 @@ def build_report(
         Multiplicity adjustment of the comparisons.
     units : str, optional
         Units of the values, for figure axes and the overview.
-    title, note, source : str, optional
-        Report title, a highlighted note (e.g. that the data are invented), and the name of the
-        input file shown in the overview.
+    unit_name : str, optional
+        What one row is ("cells", "samples", "days"): the comparison's count of rows is headed
+        ``n_<unit_name>`` (default ``n_values``).
+    title, note : str, optional
+        Report title and a highlighted note (e.g. that the data are invented).
+    source : str, optional
+        The input file (shown in the overview; when it names a file, its size and SHA-256 go into the
+        provenance) or a short description of where the data came from.
+    command : str, optional
+        The command line or call that made the report, for the provenance (default: the call to this
+        function, rebuilt from its arguments).
     figures : bool, default True
         False leaves out the figures (no matplotlib needed).
+    progress : callable, optional
+        Called with a short text before each step (the command line prints these on a terminal).
 
     Returns
     -------
@@ -232,60 +273,84 @@ def build_report(
     KeyError, TypeError, ValueError
         From the accessors, naming the column at fault (e.g. non-positive values with
         ``nonpositive="raise"``).
+
+    Notes
+    -----
+    Where results can feed clinical, regulatory or safety decisions, use validated tools, qualified
+    review, and the local rules and licensed practice that apply; the report says so in its
+    cautions section.
     """
     if not isinstance(df, pd.DataFrame):
         raise TypeError(f"build_report needs a pandas DataFrame, got {type(df).__name__}")
+    call = command or _python_call(value=value, by=by, replicate=replicate, reference=reference,
+                                   path=path, detection_limit=detection_limit, nonpositive=nonpositive,
+                                   confidence_level=confidence_level, adjust=adjust, units=units,
+                                   unit_name=unit_name, title=title, source=source, figures=figures)
+    step = progress if progress is not None else (lambda text: None)
     values = _as_list(value)
-    missing = [c for c in values + [k for k in (by, replicate) if k is not None] if c not in df.columns]
+    keys = _as_list(by) if by is not None else []
+    missing = [c for c in values + keys + ([replicate] if replicate is not None else [])
+               if c not in df.columns]
     if missing:
         raise KeyError(f"columns {missing!r} are not in the data; there are {list(df.columns)!r}")
-    if reference is not None and by is None:
+    if reference is not None and not keys:
         raise ValueError("reference= needs by= (the column whose levels are compared)")
-    if replicate is not None and by is None:
+    if replicate is not None and not keys:
         raise ValueError("replicate= needs by= (the column whose levels the replicates belong to)")
     if isinstance(detection_limit, str) and detection_limit not in df.columns:
         raise KeyError(f"detection_limit={detection_limit!r} is not a column; there are {list(df.columns)!r}")
     if reference is not None:
-        df, reference = reference_first(df, by, reference)
+        df, reference = reference_first(df, keys[0], reference)
+    df = in_data_order(df, keys)
+    by_arg: Any = None if not keys else (keys[0] if len(keys) == 1 else keys)
+    group_key: Any = by_arg if len(keys) <= 1 else joined_key(df, keys)
     acc = df.logstats
-    title = title or f"logstats report: {', '.join(map(str, values))}" + (f" by {by}" if by else "")
+    key_text = " and ".join(map(str, keys))
+    title = title or f"logstats report: {', '.join(map(str, values))}" + (f" by {key_text}" if keys else "")
+    made = datetime.datetime.now(datetime.timezone.utc).replace(microsecond=0)
+    rows_name = count_label("n_cells", unit_name=unit_name)
 
     parts: list[str] = []
     parts.append(f"<h1>{_e(title)}</h1>")
-    parts.append(f'<p class="muted">Made with logstats {_e(logstats.__version__)} (numpy '
-                 f"{_e(np.__version__)}, pandas {_e(pd.__version__)}).</p>")
+    parts.append(f'<p class="muted">Made {_e(made.strftime("%Y-%m-%d %H:%M UTC"))} with logstats '
+                 f"{_e(logstats.__version__)} (numpy {_e(np.__version__)}, pandas {_e(pd.__version__)}); "
+                 'the command, versions and input checksum are under <a href="#provenance">Provenance'
+                 "</a>.</p>")
     if note:
         parts.append(f'<p class="note">{_e(note)}</p>')
 
     # ---- overview
+    step("report: overview")
     parts.append('<section id="overview"><h2>Data overview</h2>')
     src = f" from <code>{_e(source)}</code>" if source else ""
-    n_groups = int(df[by].nunique()) if by is not None else 1
+    n_groups = int(df[keys].dropna().drop_duplicates().shape[0]) if keys else 1
     desc = f"{len(df)} rows{src}, {len(df.columns)} columns"
-    if by is not None:
-        desc += f"; {n_groups} groups of <code>{_e(by)}</code>"
-        n_nokey = int(df[by].isna().sum())
+    if keys:
+        desc += (f"; {n_groups} groups of " + " \u00d7 ".join(f"<code>{_e(k)}</code>" for k in keys))
+        n_nokey = int(df[keys].isna().any(axis=1).sum())
         if n_nokey:
             desc += f" ({n_nokey} rows without a group are left out)"
     if replicate is not None:
-        n_rep = len(df[[by, replicate]].dropna().drop_duplicates())
+        n_rep = len(df[[*keys, replicate]].dropna().drop_duplicates())
         desc += f"; {n_rep} replicates (<code>{_e(replicate)}</code>)"
     parts.append(f"<p>{desc}. Values analysed: {', '.join(f'<code>{_e(v)}</code>' for v in values)}"
                  + (f" ({_e(units)})" if units else "") + ".</p>")
-    counts = acc.moments(by=by, columns=values, nonpositive="drop")
+    counts = acc.moments(by=by_arg, columns=values, nonpositive="drop")
     counts = _rows_of(counts)
     show = ["n", "n_missing", "n_nonpositive"]
     cens = None
     if detection_limit is not None:
-        cens = _rows_of(acc.fit(by=by, columns=values, detection_limit=detection_limit))
+        cens = _rows_of(acc.fit(by=by_arg, columns=values, detection_limit=detection_limit))
         if "n_censored" in cens.columns:
             nc = cens["n_censored"]
             counts = counts.assign(n_censored=(nc.reindex(counts.index) if not nc.index.equals(counts.index)
                                                else nc).to_numpy())
             show.append("n_censored")
     parts.append(_table(counts, columns=show))
-    parts.append('<p class="muted"><code>n</code>: positive, finite values used; <code>n_missing</code>: '
-                 "empty cells; <code>n_nonpositive</code>: values at or below zero, whose logarithm is "
+    what = unit_name or "values"
+    parts.append(f'<p class="muted"><code>n</code>: positive, finite {_e(what)} used; '
+                 "<code>n_missing</code>: empty cells; <code>n_nonpositive</code>: values at or below "
+                 "zero, whose logarithm is "
                  f"undefined (policy here: <code>nonpositive={_e(repr(nonpositive))}</code>)"
                  + ("; <code>n_censored</code>: non-detects at or below the detection limit "
                     f"<code>{_e(detection_limit)}</code>" if "n_censored" in show else "")
@@ -293,8 +358,9 @@ def build_report(
     parts.append("</section>")
 
     # ---- scale check
+    step("report: scale check")
     parts.append('<section id="scale-check"><h2>Linear or log scale?</h2>')
-    chk = acc.scale_check(by=by, columns=values, nonpositive=nonpositive)
+    chk = acc.scale_check(by=by_arg, columns=values, nonpositive=nonpositive)
     parts.append(_table(chk, columns=["aic_normal", "aic_lognormal", "delta_aic", "preferred",
                                       "normality_test", "normality_p_linear", "normality_p_log",
                                       "mean", "gmean", "mean_ratio", "expected_ratio"]))
@@ -306,28 +372,30 @@ def build_report(
     parts.append("</section>")
 
     # ---- summary
+    step("report: summary")
     parts.append('<section id="summary"><h2>Summary on the log scale</h2>')
-    summ = acc.summary(by=by, columns=values, confidence_level=confidence_level, nonpositive=nonpositive,
+    summ = acc.summary(by=by_arg, columns=values, confidence_level=confidence_level, nonpositive=nonpositive,
                        linear=True)
     pct = f"{100 * confidence_level:g}\u00a0%"
     parts.append(_table(summ, columns=["n", "n_nonpositive", "gmean", "gsd", "gcv", "ci_low", "ci_high",
                                        "median", "mean", "sd"]))
-    parts.append(f"<p><code>gmean {TIMES_DIVIDE} gsd</code> covers about 68\u00a0% of a log-normal "
-                 f"population; <code>ci_low</code>\u2013<code>ci_high</code> is the {pct} confidence "
-                 "interval of the geometric mean. <code>median</code>, <code>mean</code> and "
-                 "<code>sd</code> are on the linear scale, for comparison.</p>")
+    parts.append(f"<p><code>n</code> counts {_e(what)}. <code>gmean {TIMES_DIVIDE} gsd</code> covers "
+                 f"about 68\u00a0% of a log-normal population; <code>ci_low</code>\u2013<code>ci_high</code> "
+                 f"is the {pct} confidence interval of the geometric mean. <code>median</code>, "
+                 "<code>mean</code> and <code>sd</code> are on the linear scale, for comparison.</p>")
     if replicate is not None:
-        per_rep = acc.gmean(by=[by, replicate], columns=values, nonpositive=nonpositive)
+        per_rep = acc.gmean(by=[*keys, replicate], columns=values, nonpositive=nonpositive)
         rep_col = values[0] if len(values) == 1 else None
         if rep_col is not None:
             reps = per_rep[[rep_col]] if isinstance(per_rep, pd.DataFrame) else per_rep.to_frame()
-            summ_rep = reps[rep_col].dropna().logstats.summary(by=by, confidence_level=confidence_level)
+            summ_rep = reps[rep_col].dropna().logstats.summary(by=by_arg, confidence_level=confidence_level)
             if not isinstance(summ.index, pd.MultiIndex):
                 summ_rep = summ_rep.reindex(summ.index.intersection(summ_rep.index, sort=False))
             parts.append(f"<h3>With the replicate (<code>{_e(replicate)}</code>) as the unit</h3>")
             parts.append(_table(summ_rep, columns=["n", "gmean", "gsd", "ci_low", "ci_high"]))
-            parts.append('<p class="muted"><code>n</code> counts replicates; <code>gmean</code> is the '
-                         "geometric mean of the replicates\u2019 geometric means.</p>")
+            parts.append(f'<p class="muted"><code>n</code> counts {_e(replicate)} replicates; '
+                         "<code>gmean</code> is the geometric mean of the replicates\u2019 geometric "
+                         "means.</p>")
     if cens is not None:
         parts.append(f"<h3>Log-normal fit, left-censored at the detection limit "
                      f"(<code>{_e(detection_limit)}</code>)</h3>")
@@ -339,48 +407,75 @@ def build_report(
     parts.append("</section>")
 
     # ---- comparisons
+    step("report: comparisons")
     parts.append('<section id="comparisons"><h2>Comparisons</h2>')
-    cmp_cols = ["ratio", "ci_low", "ci_high", "p_value", "p_adjusted", "n", "n_reference", "n_cells",
-                "n_cells_reference"]
+    cmp_cols = ["ratio", "ci_low", "ci_high", "p_value", "p_adjusted", "n", "n_reference", rows_name,
+                f"{rows_name}_reference"]
     if reference is None:
         parts.append('<p class="muted">No reference level given, so no fold changes were computed '
                      "(pass <code>reference=</code>).</p>")
     else:
-        kw = dict(by=by, reference=reference, columns=values, confidence_level=confidence_level,
-                  adjust=adjust, nonpositive=nonpositive)
+        compared = keys[0]
+        kw: dict[str, Any] = dict(by=compared, reference=reference, columns=values,
+                                  confidence_level=confidence_level, adjust=adjust, nonpositive=nonpositive)
+        if len(keys) > 1:
+            kw["within"] = keys[1] if len(keys) == 2 else keys[1:]
+            parts.append(f"<p>Levels of <code>{_e(compared)}</code> are compared with "
+                         f"<code>{_e(reference)}</code> within each level of "
+                         + " \u00d7 ".join(f"<code>{_e(k)}</code>" for k in keys[1:]) + ".</p>")
+
+        def shown(table: pd.DataFrame) -> pd.DataFrame:
+            table = _without_reference(table, compared, reference)
+            return table.rename(columns={c: count_label(c, unit_name=unit_name) for c in table.columns})
+
         if replicate is not None:
             fc = acc.fold_change(replicate=replicate, **kw)
             parts.append(f"<h3>Replicate (<code>{_e(replicate)}</code>) as the unit</h3>")
-            parts.append(_table(_without_reference(fc, by, reference), columns=cmp_cols))
+            parts.append(_table(shown(fc), columns=cmp_cols))
+            parts.append(f'<p class="muted"><code>n</code> and <code>n_reference</code> count '
+                         f"{_e(replicate)} replicates; <code>{_e(rows_name)}</code> and "
+                         f"<code>{_e(rows_name)}_reference</code> count {_e(what)}.</p>")
             cells = acc.fold_change(**kw)
             parts.append("<h3>Each row as a unit (for contrast only)</h3>")
-            parts.append(_table(_without_reference(cells, by, reference), columns=cmp_cols))
-            parts.append("<p>The per-row answer treats every cell as independent; cells of one "
-                         "replicate share its conditions, so its intervals are too narrow and its "
-                         "p-values too small (pseudo-replication). Use the replicate answer.</p>")
+            parts.append(_table(shown(cells), columns=cmp_cols))
+            parts.append(f"<p>The per-row answer treats every one of the {_e(what)} as independent; "
+                         "rows of one replicate share its conditions, so its intervals are too narrow "
+                         "and its p-values too small (pseudo-replication). Use the replicate answer.</p>")
+            empty = fc
         else:
             fc = acc.fold_change(**kw)
-            parts.append(_table(_without_reference(fc, by, reference), columns=cmp_cols))
+            parts.append(_table(shown(fc), columns=cmp_cols))
+            empty = fc
+        rest = _without_reference(empty, compared, reference)
+        n_empty = int(rest["ratio"].isna().sum()) if "ratio" in rest.columns else 0
+        if n_empty:
+            parts.append(f'<p class="note">{n_empty} of {len(rest)} comparison(s) have no ratio (NaN): '
+                         "a group or the reference has no usable unit there (see <code>n</code> and "
+                         "<code>n_reference</code>).</p>")
         parts.append(f"<p><code>ratio</code> is the geometric mean of each level divided by that of "
                      f"<code>{_e(reference)}</code>, with its {pct} interval; <code>p_adjusted</code> "
                      f"controls multiplicity ({_e(adjust)}).</p>")
     parts.append("</section>")
 
     # ---- figures
+    step("report: figures")
     parts.append('<section id="figures"><h2>Figures</h2>')
     if figures:
-        parts.extend(_figures(df, values, by, replicate, detection_limit, nonpositive, confidence_level,
-                              units))
+        parts.extend(_figures(df, values, group_key, replicate, detection_limit, nonpositive,
+                              confidence_level, units, step))
     else:
         parts.append('<p class="muted">Figures were left out.</p>')
     parts.append("</section>")
 
     parts.append(_methods(replicate is not None, detection_limit is not None, adjust, confidence_level))
     parts.append(_cautions())
+    step("report: provenance (input checksum)")
+    parts.append(_provenance(made, call, source, df, figures))
     parts.append('<section id="references"><h2>References</h2><ol class="refs">'
                  + "".join(f"<li>{_e(r)}</li>" for r in REFERENCES) + "</ol></section>")
 
     doc = ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+           '<meta name="viewport" content="width=device-width, initial-scale=1">\n'
            f"<title>{_e(title)}</title>\n<style>{_STYLE}</style>\n</head>\n<body>\n"
            + "\n".join(parts) + "\n</body>\n</html>\n")
     if path is not None:
@@ -388,18 +483,73 @@ def build_report(
     return doc
 
 
+def _python_call(**kw: Any) -> str:
+    """The call to :func:`build_report` as a user would have typed it (defaults left out)."""
+    defaults = {"by": None, "replicate": None, "reference": None, "path": None, "detection_limit": None,
+                "nonpositive": "raise", "confidence_level": 0.95, "adjust": "holm", "units": None,
+                "unit_name": None, "title": None, "source": None, "figures": True}
+    args = [f"{k}={str(v) if isinstance(v, Path) else v!r}" for k, v in kw.items()
+            if k not in defaults or not _same(v, defaults[k])]
+    return "logstats.report.build_report(df, " + ", ".join(args) + ")"
+
+
+def _same(a: Any, b: Any) -> bool:
+    try:
+        return bool(a == b) and type(a) is type(b)
+    except (TypeError, ValueError):
+        return False
+
+
+def _sha256(path: Path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
+
+
+def _provenance(made: datetime.datetime, call: str, source: str | None, df: pd.DataFrame,
+                figures: bool) -> str:
+    """Date, command, versions and the input file (name, size, SHA-256), as a definition list."""
+    import scipy
+
+    versions = [("logstats", logstats.__version__), ("numpy", np.__version__), ("scipy", scipy.__version__),
+                ("pandas", pd.__version__)]
+    if figures:
+        import matplotlib
+
+        versions.append(("matplotlib", matplotlib.__version__))
+    versions.append(("Python", f"{platform.python_version()} ({sys.platform})"))
+    items = [("Date", made.isoformat().replace("+00:00", "Z")), ("Command", f"<code>{_e(call)}</code>")]
+    if source is not None and Path(source).is_file():
+        p = Path(source)
+        size = p.stat().st_size
+        items.append(("Input file", f"<code>{_e(p.name)}</code> ({_e(f'{size:,}')} bytes)"))
+        items.append(("SHA-256", f"<code>{_sha256(p)}</code>"))
+    elif source is not None:
+        items.append(("Input", _e(source)))
+    else:
+        items.append(("Input", f"a DataFrame in memory ({len(df)} rows \u00d7 {len(df.columns)} columns)"))
+    items.append(("Versions", ", ".join(f"{_e(n)} {_e(v)}" for n, v in versions)))
+    return ('<section id="provenance"><h2>Provenance</h2><dl class="prov">'
+            + "".join(f"<dt>{k}</dt><dd>{v}</dd>" for k, v in items) + "</dl></section>")
+
+
 def reference_first(df: pd.DataFrame, by: Hashable, reference: Any) -> tuple[pd.DataFrame, Any]:
-    """``df`` with the ``reference`` level of ``by`` first (the others sorted), and the matched level.
+    """``df`` with the ``reference`` level of ``by`` first (the others in data order), and the level.
 
     A level also matches by its text (``"10"`` finds the number 10), as read from a command line.
-    A categorical ``by`` keeps its own order. The input is not modified (a copy is returned).
+    A categorical ``by`` keeps its own order. The other levels follow
+    :func:`logstats.format.data_order` (numbers ascending, month names in calendar order, other
+    text in natural order).
+    The input is not modified (a copy is returned).
 
     Raises
     ------
     ValueError
         When ``reference`` is not a level of ``by``, listing the levels.
     """
-    levels = list(pd.unique(df[by].dropna()))
+    levels = data_order(df[by])
     match = [lv for lv in levels if lv == reference] or [lv for lv in levels if str(lv) == str(reference)]
     if not match:
         shown = ", ".join(repr(v) for v in levels[:12])
@@ -408,7 +558,7 @@ def reference_first(df: pd.DataFrame, by: Hashable, reference: Any) -> tuple[pd.
     ref = match[0]
     if isinstance(df[by].dtype, pd.CategoricalDtype):
         return df, ref
-    others = sorted((lv for lv in levels if not (lv == ref)), key=lambda v: (str(type(v)), v))
+    others = [lv for lv in levels if not (lv == ref)]
     return df.assign(**{str(by): pd.Categorical(df[by], categories=[ref, *others])}), ref
 
 
@@ -419,15 +569,18 @@ def _without_reference(table: pd.DataFrame, by: Hashable, reference: Any) -> pd.
     return table
 
 
-def _figures(df: pd.DataFrame, values: list[Hashable], by: Hashable | None, replicate: Hashable | None,
-             detection_limit: Any, nonpositive: str, confidence_level: float, units: str | None) -> list[str]:
+def _figures(df: pd.DataFrame, values: list[Hashable], by: Any, replicate: Hashable | None,
+             detection_limit: Any, nonpositive: str, confidence_level: float, units: str | None,
+             step: Callable[[str], None]) -> list[str]:
     from logstats import plot
 
     out = []
-    ngroups = int(df[by].nunique()) if by is not None else 1
+    key = df[by] if by is not None and not isinstance(by, pd.Series) else by
+    ngroups = len(data_order(key)) if key is not None else 1
     ncols = int(np.ceil(np.sqrt(ngroups)))
     nrows = int(np.ceil(ngroups / ncols))
     for v in values:
+        step(f"report: figures of {v}")
         out.append(f"<h3><code>{_e(v)}</code></h3>")
         out.append(_figure_png(
             lambda axes, v=v: plot.hist(df, v, by=by, ax=axes if ngroups > 1 else axes[0, 0],
@@ -435,17 +588,17 @@ def _figures(df: pd.DataFrame, values: list[Hashable], by: Hashable | None, repl
                                         detection_limit=detection_limit),
             size=(3.6 * ncols, 2.8 * nrows + 0.5), nrows=nrows, ncols=ncols, share=True,
             alt=f"histogram of {v} on log-spaced bins",
-            caption="Histogram on log-spaced bins with the fitted log-normal density (solid) and the "
-                    "fitted normal density (dashed), per group; a log-normal sample follows the solid "
-                    "curve."))
+            caption="Histogram on log-spaced bins (log x axis) with the fitted log-normal density (solid) "
+                    "and the fitted normal density (dashed), per group; a log-normal sample follows the "
+                    "solid curve."))
         if by is not None:
             out.append(_figure_png(
                 lambda axes, v=v: plot.groups(df, v, by=by, replicate=replicate, nonpositive=nonpositive,
                                               confidence_level=confidence_level, units=units,
                                               ax=axes[0, 0]),
-                size=(max(5.0, 1.6 * ngroups + 3.2), 4.4),
+                size=(min(max(5.0, 1.6 * ngroups + 3.2), 14.0), 4.8),
                 alt=f"{v} per group on a log axis",
-                caption="Every value as a faint point on a log axis"
+                caption="Every value as a faint point on a log y axis"
                         + (f"; large markers are the geometric means of each {replicate}" if replicate
                            else "")
                         + f"; the black diamond and bar are the geometric mean \u00d7/\u00f7 its "
@@ -454,7 +607,7 @@ def _figures(df: pd.DataFrame, values: list[Hashable], by: Hashable | None, repl
         out.append(_figure_png(
             lambda axes, v=v: plot.qq(df, v, by=by, nonpositive=nonpositive, units=units,
                                       ax=axes[0]),
-            size=(9.6, 4.0), ncols=2,
+            size=(9.6 if ngroups <= 4 else 11.5, 4.0), ncols=2,
             alt=f"normal probability plots of {v}: logs and raw values",
             caption="Normal probability plots: ordered logs (left, log axis) and ordered raw values "
                     "(right, linear axis) against normal quantiles. Points on the line mean the scale "

@@ -11,9 +11,12 @@ family's ``_statistic(name, arguments)``. So a new declaration reaches every con
 from __future__ import annotations
 
 import inspect
+import numbers
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
+
+import numpy as np
 
 from logstats.methods import METHODS, Method
 
@@ -140,12 +143,31 @@ def _make(md: Method, family: Family) -> Callable[..., Any]:
         bound.apply_defaults()
         arguments = dict(bound.arguments)
         arguments.pop("self")
+        check_types(md, arguments)
         return self._statistic(name, arguments)
 
     method.__name__ = method.__qualname__ = name
     method.__doc__ = docstring(md, family)
     method.__signature__ = sig  # type: ignore[attr-defined]
     return method
+
+
+def check_types(md: Method, arguments: dict[str, Any]) -> None:
+    """Refuse an option of the wrong type with a TypeError naming it (``ddof="1"``, ``skipna=1``)."""
+    for p in md.params:
+        v = arguments.get(p.name)
+        if p.annotation in ("float", "int") and p.default is not None:
+            ok = isinstance(v, numbers.Real) and not isinstance(v, (bool, np.bool_))
+            if p.annotation == "int":
+                ok = ok and isinstance(v, numbers.Integral)
+            if not ok:
+                raise TypeError(f"{md.name}(): {p.name}= must be a number; got {v!r} "
+                                f"({type(v).__name__})")
+        elif p.annotation == "bool" and not isinstance(v, (bool, np.bool_)):
+            raise TypeError(f"{md.name}(): {p.name}= must be True or False; got {v!r}")
+    for key in ("skipna", "observed", "dropna", "sort", "keep_attrs"):
+        if key in arguments and not isinstance(arguments[key], (bool, np.bool_)):
+            raise TypeError(f"{md.name}(): {key}= must be True or False; got {arguments[key]!r}")
 
 
 def install(cls: type, family: str, *, skip: tuple[str, ...] = ()) -> type:

@@ -51,6 +51,19 @@ def raise_for_counts(counts: Any, *, policy: Policy, where: str, labels: Sequenc
         raise ValueError(nonpositive_message(where, total, groups))
 
 
+def inf_message(where: str, posinf: np.ndarray, codes: np.ndarray | None,
+                labels: Sequence[Any] | None) -> str:
+    """The ``+inf`` refusal, naming the groups that hold it."""
+    grp = ""
+    if codes is not None and labels is not None:
+        hit = np.unique(np.asarray(codes)[posinf & (np.asarray(codes) >= 0)])
+        shown = ", ".join(repr(labels[int(i)]) for i in hit[:5])
+        more = f" and {len(hit) - 5} more" if len(hit) > 5 else ""
+        grp = f" (in group(s) {shown}{more})" if len(hit) else ""
+    return (f"{where} holds {int(posinf.sum())} value(s) of +inf{grp}; logstats refuses +inf always "
+            "(replace it with NaN to have it skipped and counted as missing)")
+
+
 def _undefined(policy: Policy, n_missing: Any, n_nonpositive: Any) -> tuple[np.ndarray, np.ndarray]:
     """Groups the policy makes undefined: (because of missing values, because of non-positive ones)."""
     by_missing = (np.asarray(n_missing) > 0) if not policy.skipna else np.zeros(np.shape(n_missing), bool)
@@ -229,8 +242,7 @@ def finalize_values(method: Method, path: str, data: np.ndarray, *, codes: np.nd
     flat = x.reshape(-1)
     posinf = np.isposinf(flat)
     if posinf.any():
-        raise ValueError(f"{where} holds {int(posinf.sum())} value(s) of +inf; logstats refuses +inf always "
-                         "(replace it with NaN to have it skipped and counted as missing)")
+        raise ValueError(inf_message(where, posinf, full % g if codes is not None else None, labels))
     missing = np.isnan(flat)
     limit = policy.detection_limit
     censored = np.zeros(flat.shape, dtype=bool)
@@ -337,7 +349,15 @@ def compute(method: Method | str, data: Any, *, nred: int = 1, codes: np.ndarray
         out = _lazy_moments(md, data, nred=nred, codes=codes, ngroups=ngroups, policy=policy, params=params,
                             where=where, labels=labels)
     else:
-        m = _moments(np.asarray(data), nred, codes, ngroups, where)
+        arr = np.asarray(data)
+        try:
+            m = _moments(arr, nred, codes, ngroups, where)
+        except ValueError as exc:  # +inf: say in which groups
+            if "+inf" not in str(exc) or codes is None:
+                raise
+            hit = np.isposinf(as_float_array(arr, where=where))
+            raise ValueError(inf_message(where, hit.reshape(-1, hit.shape[-1]).any(axis=0), codes,
+                                         labels)) from None
         out = finalize_moments(md, m, policy=policy, params=params, where=where, labels=labels)
     for _p, addon in addons:
         more = compute(addon, data, nred=nred, codes=codes, ngroups=ngroups, policy=policy,

@@ -13,7 +13,7 @@ import pandas as pd
 from logstats.core.transform import LogstatsWarning
 
 __all__ = ["Groups", "column_values", "factorize_keys", "is_label_of", "resolve_keys", "resolve_limit",
-           "value_columns"]
+           "value_columns", "value_items"]
 
 
 @dataclass(frozen=True)
@@ -48,7 +48,11 @@ def resolve_keys(obj: pd.DataFrame | pd.Series, by: Any) -> list[pd.Series]:
                 raise ValueError(f"by= array has length {len(item)}, the data has {len(obj)} rows")
             keys.append(pd.Series(item, index=obj.index, name=getattr(item, "name", None)))
         elif isinstance(obj, pd.DataFrame) and item in obj.columns:
-            keys.append(obj[item])  # type: ignore[arg-type]
+            col = obj[item]
+            if isinstance(col, pd.DataFrame):
+                raise ValueError(f"by={item!r} names {col.shape[1]} columns (the label is duplicated); "
+                                 "rename them or pass the key as a Series")
+            keys.append(col)
         elif item in (obj.index.names or []) and item is not None:
             keys.append(pd.Series(obj.index.get_level_values(item), index=obj.index, name=item))
         else:
@@ -163,7 +167,7 @@ def factorize_keys(keys: Sequence[pd.Series], *, observed: bool = True, dropna: 
     names = [k.name for k in keys]
     if len(codes_list) == 1:
         index = levels_list[0].take(uniq)
-        index.name = names[0]
+        index.names = [names[0]]  # (a tuple label is one name, not one per level)
     else:
         parts = np.unravel_index(uniq, dims)
         index = pd.MultiIndex.from_arrays([lv.take(p) for lv, p in zip(levels_list, parts)], names=names)
@@ -179,39 +183,113 @@ def factorize_keys(keys: Sequence[pd.Series], *, observed: bool = True, dropna: 
 
 
 def _is_value_dtype(dtype: Any) -> bool:
-    return pd.api.types.is_numeric_dtype(dtype) and not pd.api.types.is_bool_dtype(dtype)
+    return pd.api.types.is_numeric_dtype(dtype) and not pd.api.types.is_bool_dtype(dtype) and \
+        not pd.api.types.is_complex_dtype(dtype)
+
+
+#: Integer columns whose name marks them as identifiers are left out of the default value columns: a
+#: name whose last word (words split at ``_``, ``-``, ``.`` or a space; case-insensitive) is one of
+#: these, e.g. ``cell_id``, ``ID``, ``index``, ``sample_no``. Name such a column in ``columns=`` to
+#: summarise it anyway. Float columns and other names (``well``, ``plate``) stay values.
+IDENTIFIER_WORDS = ("id", "idx", "index", "no", "nr", "number", "code", "uid", "key")
+
+
+def looks_like_identifier(label: Hashable, dtype: Any) -> bool:
+    if not pd.api.types.is_integer_dtype(dtype) or not isinstance(label, str):
+        return False
+    words = label.strip().lower().replace("-", "_").replace(".", "_").replace(" ", "_").split("_")
+    return bool(words) and words[-1] in IDENTIFIER_WORDS
+
+
+def value_items(df: pd.DataFrame, columns: Any,
+                exclude: Sequence[Hashable] = ()) -> list[tuple[Hashable, int]]:
+    """``(label, position)`` of each value column, in column order; duplicated labels give one item per
+    position (as ``groupby(...).agg`` would). Default: numeric, non-boolean columns that are neither
+    keys nor limits nor identifier-like integer columns (:data:`IDENTIFIER_WORDS`)."""
+    labels = list(df.columns)
+    if columns is None:
+        skip = [k for k in exclude]
+        items = []
+        for i, c in enumerate(labels):
+            if any(_same_label(c, k) for k in skip):
+                continue
+            dt = df.dtypes.iloc[i]
+            if _is_value_dtype(dt) and not looks_like_identifier(c, dt):
+                items.append((c, i))
+        if not items:
+            raise TypeError(
+                f"no numeric value columns to summarise (columns: {labels!r}; group keys: "
+                f"{list(exclude)!r}); pass columns= to name them"
+            )
+        return items
+    if is_label_of(df, columns):
+        wanted: list[Hashable] = [columns]
+    elif isinstance(columns, (list, tuple, pd.Index)):
+        wanted = list(columns)
+    else:
+        wanted = [columns]
+    missing = [c for c in wanted if not is_label_of(df, c)]
+    if missing:
+        raise KeyError(f"columns {missing!r} are not in the data; there are {labels!r}")
+    items = []
+    for c in wanted:
+        for i in np.flatnonzero([_same_label(c, x) for x in labels]):
+            items.append((c, int(i)))
+    bad = [(c, i) for c, i in items if not _is_value_dtype(df.dtypes.iloc[i])]
+    if bad:
+        kinds = ", ".join(f"{c!r} ({df.dtypes.iloc[i]})" for c, i in bad)
+        raise TypeError(
+            f"column(s) {kinds} are not numeric; logstats needs positive real numbers. Convert them "
+            f"(e.g. pd.to_numeric) or leave them out of columns=.{_why_not_numeric(df, bad)}"
+        )
+    return items
+
+
+def _why_not_numeric(df: pd.DataFrame, bad: list[tuple[Hashable, int]]) -> str:
+    """A hint for the commonest non-numeric value columns (non-detects, complex, datetimes)."""
+    hints = []
+    for c, i in bad:
+        col = df.iloc[:, i]
+        dt = col.dtype
+        if pd.api.types.is_complex_dtype(dt):
+            hints.append(f" {c!r} holds complex numbers: take .real or abs() explicitly if that is meant.")
+        elif pd.api.types.is_bool_dtype(dt):
+            hints.append(f" {c!r} holds booleans: cast explicitly if they are numbers.")
+        elif pd.api.types.is_datetime64_any_dtype(dt) or pd.api.types.is_timedelta64_dtype(dt):
+            hints.append(f" {c!r} holds {dt} values, which have no logarithm: convert them to a number of "
+                         "units (e.g. .dt.total_seconds()).")
+        elif pd.api.types.is_object_dtype(dt) or pd.api.types.is_string_dtype(dt):
+            text = col.dropna().astype(str).str.strip()
+            if text.str.startswith("<").any() or text.str.upper().isin(["ND", "N.D.", "BDL"]).any():
+                hints.append(f" {c!r} holds entries such as '<0.5' or 'ND' (non-detects): "
+                             "logstats.split_censored(column) turns them into a value and a detection_limit.")
+    return "".join(hints)
+
+
+def _same_label(a: Any, b: Any) -> bool:
+    if isinstance(a, tuple) != isinstance(b, tuple):
+        return False
+    try:
+        return bool(a == b)
+    except (TypeError, ValueError):
+        return False
 
 
 def value_columns(df: pd.DataFrame, columns: Any, exclude: Sequence[Hashable] = ()) -> list[Hashable]:
-    """The value columns: named ones (checked) or, by default, numeric non-boolean columns not in ``by``."""
-    if columns is None:
-        skip = set(exclude)
-        cols: list[Hashable] = [c for c in df.columns if c not in skip and _is_value_dtype(df[c].dtype)]
-        if not cols:
-            raise TypeError(
-                f"no numeric value columns to summarise (columns: {list(df.columns)!r}; group keys: "
-                f"{list(exclude)!r}); pass columns= to name them"
-            )
-        return cols
-    cols = [columns] if not isinstance(columns, (list, tuple, pd.Index)) else list(columns)
-    cols = list[Hashable](cols)
-    missing = [c for c in cols if c not in df.columns]
-    if missing:
-        raise KeyError(f"columns {missing!r} are not in the data; there are {list(df.columns)!r}")
-    bad = [c for c in cols if not _is_value_dtype(df[c].dtype)]
-    if bad:
-        kinds = ", ".join(f"{c!r} ({df[c].dtype})" for c in bad)
-        raise TypeError(
-            f"column(s) {kinds} are not numeric; logstats needs positive numbers. Convert them "
-            "(e.g. pd.to_numeric) or leave them out of columns="
-        )
-    return cols
+    """The value columns' labels (see :func:`value_items`)."""
+    return [c for c, _ in value_items(df, columns, exclude)]
 
 
 def column_values(s: pd.Series, name: Hashable) -> np.ndarray:
-    """A numeric column as float64 (a view when it already is one); pd.NA becomes NaN."""
+    """A numeric column as float64 (a view when it already is one); pd.NA becomes NaN.
+
+    Anything else (text, objects, booleans, complex, datetimes) is a TypeError naming the column, its
+    dtype and what to do (non-detect entries such as ``"<0.5"`` point to :func:`logstats.split_censored`).
+    """
     if not _is_value_dtype(s.dtype):
-        raise TypeError(f"column {name!r} has dtype {s.dtype}, which is not numeric")
+        hint = _why_not_numeric(s.to_frame(), [(name, 0)])
+        raise TypeError(f"column {name!r} ({s.dtype}) is not numeric; logstats needs positive real numbers. "
+                        f"Convert it (e.g. pd.to_numeric).{hint}")
     if s.dtype == np.float64:
         return s.to_numpy(copy=False)
     return s.to_numpy(dtype=np.float64, na_value=np.nan)

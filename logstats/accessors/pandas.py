@@ -26,6 +26,7 @@ from logstats.accessors._labels import (
     resolve_keys,
     resolve_limit,
     value_columns,
+    value_items,
 )
 from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
 from logstats.methods import INT_FIELDS, METHODS, Policy, resolve
@@ -60,17 +61,25 @@ class _PandasBase(FigureMethods):
         return isinstance(self._obj, pd.Series)
 
     def _setup(self, by: Any, columns: Any, observed: bool, dropna: bool, sort: bool,
-               other_keys: tuple[Any, ...] = ()) -> tuple[pd.DataFrame, list[Hashable], Groups | None]:
+               other_keys: tuple[Any, ...] = ()
+               ) -> tuple[pd.DataFrame, list[tuple[Hashable, int]], Groups | None]:
+        """The frame, its value columns as ``(label, position)`` and the groups of ``by``.
+
+        Keys and limits given as column labels are left out of the default value columns; a key given
+        as a Series (even one derived from a value column) is not, as in pandas groupby.
+        """
         df = self._frame()
         others = [k for k in other_keys if is_label_of(df, k)]
+        if self._is_series() and columns is None:
+            columns = [df.columns[0]]  # the Series itself is the value, whatever its dtype
         if by is None:
-            cols = value_columns(df, columns, exclude=others)
-            return df, cols, None
+            return df, value_items(df, columns, exclude=others), None
         keys = resolve_keys(self._obj, by)
-        exclude = [] if self._is_series() else [k.name for k in keys if k.name in df.columns] + others
-        cols = value_columns(df, columns, exclude=exclude)
+        named = [item for item in (by if isinstance(by, list) else [by]) if is_label_of(df, item)]
+        exclude = [] if self._is_series() else named + others
+        items = value_items(df, columns, exclude=exclude)
         groups = factorize_keys(keys, observed=observed, dropna=dropna, sort=sort)
-        return df, cols, groups
+        return df, items, groups
 
     def _tidy(self, results: list[tuple[Hashable, dict[str, np.ndarray]]], groups: Groups | None
               ) -> pd.DataFrame | pd.Series:
@@ -90,7 +99,7 @@ class _PandasBase(FigureMethods):
         frames = [tidy_frame(f, groups.index) for _, f in results]
         if len(frames) == 1:
             return frames[0]
-        return pd.concat(frames, keys=[c for c, _ in results], names=["variable"]).pipe(_variable_last)
+        return stack_variables(frames, [c for c, _ in results])
 
     # ------------------------------------------------------------------ the declared statistics
     def _statistic(self, name: str, args: dict[str, Any]) -> Any:
@@ -135,18 +144,22 @@ class _PandasBase(FigureMethods):
             else:
                 args[p] = resolve_limit(df, args.get(p), keyword=p)
         results = []
-        for col in cols:
-            out = compute(md, column_values(df[col], col), nred=1,
+        for col, pos in cols:
+            out = compute(md, column_values(df.iloc[:, pos], col), nred=1,
                           codes=groups.codes if groups is not None else None,
                           ngroups=groups.ngroups if groups is not None else None, policy=policy,
                           params=args, where=_where(col),
                           labels=groups.labels if groups is not None else None)
             results.append((col, out))
         if md.shape == "single":
-            return self._single_shape(name, results, groups)
-        if resolve(md, args).pools_groups:  # one row for all groups together
-            return self._tidy(results, None)
-        return self._tidy(results, groups)
+            res = self._single_shape(name, results, groups)
+        elif resolve(md, args).pools_groups:  # one row for all groups together
+            res = self._tidy(results, None)
+        else:
+            res = self._tidy(results, groups)
+        if groups is not None and hasattr(res, "attrs"):
+            res.attrs["n_without_key"] = groups.n_unkeyed  # rows left out for a missing key
+        return res
 
     def _single_shape(self, name: str, results: list[tuple[Hashable, dict[str, np.ndarray]]],
                       groups: Groups | None) -> Any:
@@ -244,16 +257,17 @@ class _PandasBase(FigureMethods):
         params = dict(paired=paired, equal_var=equal_var, confidence_level=confidence_level, adjust=adjust,
                       equivalence=equivalence, equivalence_alpha=equivalence_alpha)
         results = []
-        for col in cols:
+        for col, pos in cols:
             if nested is not None:
-                res = compare_nested(column_values(df[col], col), groups.codes, groups.ngroups, ref,
+                res = compare_nested(column_values(df.iloc[:, pos], col), groups.codes, groups.ngroups, ref,
                                      policy=policy, labels=levels, where=_where(col), nested=nested,
                                      names=nested_names, stratum_codes=strat_codes, n_strata=n_strata,
                                      params=params)
             else:
-                res = compare(column_values(df[col], col), groups.codes, groups.ngroups, ref, policy=policy,
-                              labels=levels, where=_where(col), stratum_codes=strat_codes, n_strata=n_strata,
-                              replicate_codes=rep_codes, n_replicates=n_rep, params=params)
+                res = compare(column_values(df.iloc[:, pos], col), groups.codes, groups.ngroups, ref,
+                              policy=policy, labels=levels, where=_where(col), stratum_codes=strat_codes,
+                              n_strata=n_strata, replicate_codes=rep_codes, n_replicates=n_rep,
+                              params=params)
             keep = [i for i in range(groups.ngroups) if i != ref]
             warn_if_empty(res["ratio"][:, keep], reference=reference, where=_where(col), paired=paired,
                           n=res["n"][:, keep], n_reference=res["n_reference"][:, keep], stacklevel=3)
@@ -322,17 +336,32 @@ def fold_change_frame(results: list[tuple[Hashable, dict[str, np.ndarray]]], lev
         out.append(frame)
     if len(out) == 1:
         return out[0]
-    return pd.concat(out, keys=[c for c, _ in results], names=["variable"]).pipe(_variable_last)
+    return stack_variables(out, [c for c, _ in results])
+
+
+def _level_values(idx: pd.Index, i: int) -> pd.Index:
+    """Level ``i`` of an index by position (level names may be integers, so never by name)."""
+    if not isinstance(idx, pd.MultiIndex):
+        return idx
+    return idx.levels[i].take(idx.codes[i], allow_fill=True, fill_value=None)
+
+
+def stack_variables(frames: list[pd.DataFrame], labels: list[Hashable]) -> pd.DataFrame:
+    """Frames of one value column each, stacked with a last index level ``variable`` holding the column
+    labels as they are (ints, tuples, duplicates: one label per frame, never split into levels)."""
+    out = pd.concat(frames)
+    var = pd.Index(labels, tupleize_cols=False, dtype=object).repeat([len(f) for f in frames])
+    idx = out.index
+    n = idx.nlevels
+    arrays = [_level_values(idx, i) for i in range(n)] + [var]
+    names = list(idx.names) + ["variable"]
+    out.index = pd.MultiIndex.from_arrays(arrays, names=names)
+    return out
 
 
 def _maybe_int(s: pd.Series) -> pd.Series:
     vals = s.to_numpy(dtype=np.float64)
     return s.astype(np.int64) if np.isfinite(vals).all() else s
-
-
-def _variable_last(df: pd.DataFrame) -> pd.DataFrame:
-    n = df.index.nlevels
-    return df.reorder_levels(list(range(1, n)) + [0])
 
 
 install(_PandasBase, "pandas")

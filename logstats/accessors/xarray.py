@@ -55,7 +55,7 @@ class Plan:
             cdim = coord.dims[0]
             if dim is None:
                 dim = cdim
-            dims = [dim] if isinstance(dim, str) else list(dim)
+            dims = [dim] if _one_dim(dim, da) else list(dim)
             if dims != [cdim]:
                 raise ValueError(f"by={by!r} lies along {cdim!r}; pass dim={cdim!r} (got dim={dim!r})")
             # group labels must be known to lay out the result: a dask-backed coordinate is loaded here
@@ -69,7 +69,7 @@ class Plan:
             if dim is None:
                 dims = list(da.dims)
             else:
-                dims = [dim] if isinstance(dim, str) else list(dim)
+                dims = [dim] if _one_dim(dim, da) else list(dim)
             missing = [d for d in dims if d not in da.dims]
             if missing:
                 raise ValueError(f"dim {missing!r} not found; the data has dims {list(da.dims)!r}")
@@ -92,6 +92,16 @@ class Plan:
         if self.by is not None:
             out[self.by] = self.group_index
         return out
+
+
+def _one_dim(dim: Any, da: xr.DataArray) -> bool:
+    """``dim`` names one dimension (a string, or any hashable that is a dim: dims need not be strings)."""
+    if isinstance(dim, str):
+        return True
+    try:
+        return dim in da.dims or not isinstance(dim, (list, tuple, set))
+    except TypeError:
+        return False
 
 
 def _limit_for(source: Any, da: xr.DataArray, detection_limit: Any, plan: Plan,
@@ -148,6 +158,32 @@ class _XarrayBase(FigureMethods):
     def _is_array(self) -> bool:
         return isinstance(self._obj, xr.DataArray)
 
+    def _usable(self, dim: Any, by: Any) -> list[tuple[Hashable, xr.DataArray]]:
+        """The variables to reduce: in a Dataset, those lacking the reduced dim (or the ``by``
+        coordinate) are left out, as ``Dataset.reduce`` leaves them unreduced, and a LogstatsWarning
+        names them."""
+        variables = self._variables()
+        if self._is_array() or (dim is None and by is None):
+            return variables
+        if by is not None and by in self._obj.coords:
+            wanted = set(self._obj.coords[by].dims)
+        else:
+            wanted = {dim} if _one_dim(dim, self._obj) else set(dim)
+        keep = [(k, v) for k, v in variables if wanted <= set(v.dims)]
+        skipped = [k for k, v in variables if not wanted <= set(v.dims)]
+        if skipped:
+            import warnings
+
+            from logstats.core.transform import LogstatsWarning
+
+            warnings.warn(f"variable(s) {skipped!r} lack the dim {sorted(map(str, wanted))} and are left out",
+                          LogstatsWarning, stacklevel=4)
+        if not keep:
+            have = {k: list(v.dims) for k, v in variables}
+            raise ValueError(f"no data variable has the dim(s) {sorted(map(str, wanted))}; the variables "
+                             f"have {have}")
+        return keep
+
     def _each(self, fn: Callable[[xr.DataArray, Hashable], xr.Dataset]) -> list[tuple[Hashable, xr.Dataset]]:
         return [(name, fn(da, name)) for name, da in self._variables()]
 
@@ -173,7 +209,7 @@ class _XarrayBase(FigureMethods):
         dim, by, keep_attrs = args.pop("dim"), args.pop("by"), args.pop("keep_attrs")
         check_nonpositive(nonpositive)
         parts = []
-        for vname, da in self._variables():
+        for vname, da in self._usable(dim, by):
             _check_value(da, vname)
             plan = Plan(da, dim, by)
             policy = Policy(skipna=skipna, nonpositive=nonpositive,

@@ -15,13 +15,15 @@ the corrected two-pass formula ``m2 = Σd² − (Σd)²/n``.
 
 from __future__ import annotations
 
+import os
+import threading
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field, fields
 from typing import Any
 
 import numpy as np
 
-from logstats.core.transform import LoggedValues, to_logs
+from logstats.core.transform import LoggedValues, as_float_array, posinf_message, to_logs
 
 __all__ = [
     "FIELDS",
@@ -136,25 +138,38 @@ def _empty_to_nan(n: np.ndarray, *arrs: np.ndarray) -> list[np.ndarray]:
     return [np.where(n > 0, a, np.nan) for a in arrs]
 
 
-#: Values handled at once by :func:`moments_along` on large inputs (2 MiB of float64: the temporaries
-#: of one block stay in the processor cache).
+#: Values handled at once by :func:`moments_along` (2 MiB of float64: the logs of one block and the
+#: temporaries made from them stay in the processor cache).
 ALONG_CHUNK = 1 << 18
 
 
 def moments_along(values: Any, axis: int | Sequence[int] | None = None, *, where: str = "the input",
-                  chunk_values: int = ALONG_CHUNK) -> LogMoments:
+                  chunk_values: int = ALONG_CHUNK, threads: int | None = None) -> LogMoments:
     """Log-moments of ``values`` reduced over ``axis`` (an int, a tuple, or None for all).
 
-    Uses numpy's pairwise summation and the corrected two-pass formula, so cancellation (values such
-    as 1e7 ± 1e-1) costs no accuracy. When the reduced axes are the trailing ones (as the accessors
-    arrange) and the input holds more than ``chunk_values`` values, it is taken in blocks: whole rows
-    of the kept axes, or slices of the last axis whose moments are merged with :func:`merge_two`. The
-    temporaries then stay small and in cache (about 3x faster on 2e7 values), and the result agrees
-    with the one-block computation to rounding (closer to the exact value when the last axis is strided).
+    Uses numpy's summation and the corrected two-pass formula, so cancellation (values such as
+    1e7 ± 1e-1) costs no accuracy. The input is read in its own memory order, whatever the axes and
+    the strides (a transposed view is reduced without a copy): it is taken in blocks of about
+    ``chunk_values`` consecutive values, whose logs are written into one reused float64 buffer (float32
+    and integer input are widened one block at a time, never as a whole), reduced by the two-pass
+    formula within the block, and merged into the result with the update of Chan et al. (1979). Extra
+    memory is therefore a few blocks, not a copy of the input; the result agrees with a one-block
+    computation to rounding.
+
+    ``threads`` (default: up to :data:`MAX_THREADS` for inputs of at least :data:`THREAD_MIN_VALUES`
+    values, when called from the main thread) spreads the blocks over that many threads; ``1`` keeps
+    the call on the calling thread. The numbers do not depend on it beyond rounding.
     """
     arr = np.asarray(values)
     axes = tuple(range(arr.ndim)) if axis is None else normalize_axes(axis, arr.ndim)
-    m = _moments_along_blocks(arr, axes, where, chunk_values)
+    if arr.dtype.kind not in "fiu" or arr.dtype.itemsize > 8:
+        arr = as_float_array(arr, where=where)  # objects, booleans (refused), long double, ...
+    if arr.ndim == 0:  # one value: its moments over an axis of length 1
+        m = _moments_in_memory_order(arr.reshape(1), (0,), where, 1, 1)
+    elif arr.size == 0 or not axes:  # nothing to block: empty input, or no reduction at all
+        m = _moments_along(to_logs(arr, where=where), axes, own_logs=True)
+    else:
+        m = _moments_in_memory_order(arr, axes, where, max(int(chunk_values), 1), threads)
 
     def of_logs(z: np.ndarray) -> LogMoments:
         return _moments_along(LoggedValues(z, np.isnan(z), np.zeros(z.shape, dtype=bool)), axes)
@@ -162,34 +177,238 @@ def moments_along(values: Any, axis: int | Sequence[int] | None = None, *, where
     return _refine_tight(m, arr, of_logs, lambda p: np.expand_dims(p, axes))
 
 
-def _moments_along_blocks(arr: np.ndarray, axes: tuple[int, ...], where: str,
-                          chunk_values: int) -> LogMoments:
-    nd = arr.ndim
-    k = len(axes)
-    if arr.size <= chunk_values or not axes or axes != tuple(range(nd - k, nd)):
-        return _moments_along(to_logs(arr, where=where), axes, own_logs=True)
-    if k == nd:
-        return _moments_along_last(arr, axes, where, chunk_values)
-    rows = arr.shape[0]  # a kept axis: blocks of whole rows, each reduced completely
-    step = max(chunk_values // (arr.size // rows), 1)
-    parts = [_moments_along_last(arr[s : s + step], axes, where, chunk_values) for s in range(0, rows, step)]
-    if len(parts) == 1:
-        return parts[0]
-    return LogMoments(**{f: np.concatenate([getattr(p, f) for p in parts], axis=0) for f in FIELDS})
+def _memory_view(arr: np.ndarray, axes: tuple[int, ...]) -> tuple[np.ndarray, list[bool], list[int]]:
+    """A view of ``arr`` with its axes in memory order (slowest first), length-1 axes dropped and
+    neighbours of one kind (both reduced or both kept) fused where the strides allow.
+
+    Returns the view, which of its axes are reduced, and the original kept axes in view order (before
+    fusing; length-1 kept axes last): the accumulated result has the kept elements in that order.
+    """
+    live = [i for i in range(arr.ndim) if arr.shape[i] != 1]
+    order = sorted(live, key=lambda i: (-abs(arr.strides[i]), i))
+    kept_order = [i for i in order if i not in axes] + [i for i in range(arr.ndim)
+                                                        if arr.shape[i] == 1 and i not in axes]
+    v = arr[tuple(slice(None) if s != 1 else 0 for s in arr.shape)]  # drops length-1 axes: a view
+    pos = {i: j for j, i in enumerate(live)}
+    v = v.transpose([pos[i] for i in order])
+    shape: list[int] = []
+    strides: list[int] = []
+    red: list[bool] = []
+    for i, s, st in zip(order, v.shape, v.strides):
+        r = i in axes
+        if shape and red[-1] == r and strides[-1] == st * s:
+            shape[-1] *= s
+            strides[-1] = st
+        else:
+            shape.append(s)
+            strides.append(st)
+            red.append(r)
+    fused = np.lib.stride_tricks.as_strided(v, shape=tuple(shape), strides=tuple(strides), writeable=False)
+    return fused, red, kept_order
 
 
-def _moments_along_last(arr: np.ndarray, axes: tuple[int, ...], where: str, chunk_values: int) -> LogMoments:
-    """Slices of the last (reduced) axis, each about ``chunk_values`` values, merged in order."""
-    last = arr.shape[-1]
-    step = chunk_values // max(arr.size // max(last, 1), 1)
-    if step < 64 or step >= last:  # thin slices would cost more than they save
-        return _moments_along(to_logs(arr, where=where), axes, own_logs=True)
-    out = None
-    for start in range(0, last, step):
-        part = _moments_along(to_logs(arr[..., start : start + step], where=where), axes, own_logs=True)
-        out = part if out is None else merge_two(out, part)
-    assert out is not None
-    return out
+def _moments_in_memory_order(arr: np.ndarray, axes: tuple[int, ...], where: str, chunk: int,
+                             threads: int | None) -> LogMoments:
+    """Blocked, copy-free form of :func:`_moments_along` (see :func:`moments_along`)."""
+    v, red, kept_order = _memory_view(arr, axes)
+    if v.ndim == 0:  # every axis has length 1: one value, reduced over one axis of length 1
+        v, red = v.reshape(1), [True]
+    nd = v.ndim
+    shape = v.shape
+    # blocks: whole trailing axes (at most `chunk` values), a run along axis `split`, every index before
+    a = nd
+    inner = 1
+    while a > 0 and inner * shape[a - 1] <= chunk:
+        a -= 1
+        inner *= shape[a]
+    split = max(a - 1, 0)
+    step = shape[0] if a == 0 else max(chunk // inner, 1)
+    kept_shape = tuple(s for s, r in zip(shape, red) if not r)
+    brd = tuple(i - split for i in range(split, nd) if red[i])  # reduced axes of a block
+    isfloat = arr.dtype.kind == "f"
+    bufsize = min(v.size, step * inner)
+
+    def run(lo: int, hi: int, acc: _Accumulator) -> None:
+        """Every block whose index along the view's first axis is in ``lo .. hi-1``, into ``acc``."""
+        buf = np.empty(bufsize, dtype=np.float64)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            if split == 0:
+                for s in range(lo, hi, step):
+                    sl = slice(s, min(s + step, hi))
+                    acc.add(() if red[0] else (sl,), *_block_moments(v[sl], buf, brd, isfloat, arr, where))
+                return
+            for i0 in range(lo, hi):
+                for rest in np.ndindex(*shape[1:split]):
+                    idx = (i0, *rest)
+                    out_lead = tuple(j for j, r in zip(idx, red) if not r)
+                    for s in range(0, shape[split], step):
+                        sl = slice(s, s + step)
+                        out = out_lead + ((sl,) if not red[split] else ())
+                        acc.add(out, *_block_moments(v[idx + (sl,)], buf, brd, isfloat, arr, where))
+
+    nthreads = _threads_for(threads, v.size, shape[0], step if split == 0 else 1,
+                            int(np.prod(kept_shape)), shared=not red[0])
+    acc = _Accumulator(kept_shape)
+    if nthreads <= 1:
+        run(0, shape[0], acc)
+        return acc.result(kept_order, arr.shape)
+    unit = step if split == 0 else 1  # split the first axis in whole blocks
+    units = -(-shape[0] // unit)
+    bounds = [min(shape[0], unit * (units * k // nthreads)) for k in range(nthreads + 1)]
+    accs = [acc if not red[0] or k == 0 else _Accumulator(kept_shape) for k in range(nthreads)]
+    errors: list[BaseException | None] = [None] * nthreads
+
+    def work(k: int) -> None:
+        try:
+            run(bounds[k], bounds[k + 1], accs[k])
+        except BaseException as exc:  # re-raised in the calling thread
+            errors[k] = exc
+
+    pool = [threading.Thread(target=work, args=(k,), daemon=True) for k in range(1, nthreads)]
+    for th in pool:
+        th.start()
+    work(0)
+    for th in pool:
+        th.join()
+    for exc in errors:
+        if exc is not None:
+            raise exc
+    if red[0]:  # each thread saw part of every element: merge, in order
+        with np.errstate(divide="ignore", invalid="ignore"):
+            for other in accs[1:]:
+                acc.merge(other)
+    return acc.result(kept_order, arr.shape)
+
+
+#: Values from which :func:`moments_along` spreads its blocks over threads (numpy releases the GIL in
+#: ``np.log`` and in the sums), and the most threads it uses. Only the main thread spreads: calls from
+#: worker threads (dask's schedulers, a user's pool) stay on their own thread.
+THREAD_MIN_VALUES = 1 << 21
+MAX_THREADS = 2
+
+
+def _threads_for(threads: int | None, size: int, first: int, unit: int, kept: int, *, shared: bool) -> int:
+    if threads is None:
+        if size < THREAD_MIN_VALUES or threading.current_thread() is not threading.main_thread():
+            return 1
+        try:
+            cpus = len(os.sched_getaffinity(0))
+        except (AttributeError, OSError):  # not on Linux
+            cpus = os.cpu_count() or 1
+        threads = min(cpus, MAX_THREADS)
+        if not shared and 3 * kept * threads > size // 4:  # private results would cost too much memory
+            return 1
+    units = -(-first // max(unit, 1))
+    return max(1, min(int(threads), units))
+
+
+def _block_moments(block: np.ndarray, buf: np.ndarray, rb: tuple[int, ...], isfloat: bool, arr: np.ndarray,
+                   where: str) -> tuple[Any, ...]:
+    """Two-pass moments of one block over its axes ``rb``: (n, mean, m2, n_missing, n_nonpositive);
+    the counts of excluded values are None when there are none. Call under ``np.errstate``."""
+    y = buf[: block.size].reshape(block.shape)
+    if block.dtype == np.float64:
+        np.log(block, out=y)
+    else:  # widen into the (cached) buffer, then log in place: faster than a casting log
+        np.copyto(y, block)
+        np.log(y, out=y)
+    s = y.sum(axis=rb)
+    count = int(np.prod([block.shape[i] for i in rb], dtype=np.int64))
+    if np.isfinite(s).all():  # the common case: every log finite (NaN or ±inf would spoil the sum)
+        mean = s / count
+        np.subtract(y, np.expand_dims(mean, rb), out=y)
+        corr = y.sum(axis=rb)
+        m2 = _sum_squares(y, rb) - corr * corr / count
+        mean += corr / count
+        return count, mean, m2, None, None
+    posinf = y == np.inf  # only log(+inf) is +inf
+    if posinf.any():
+        raise ValueError(posinf_message(where, int(np.count_nonzero(np.isposinf(arr)))))
+    missing = np.isnan(block) if isfloat else np.zeros(block.shape, dtype=bool)
+    nonpositive = block <= 0  # NaN compares False; -inf is <= 0
+    bad = missing | nonpositive
+    n = (~bad).sum(axis=rb)
+    nz = np.maximum(n, 1)
+    np.copyto(y, 0.0, where=bad)
+    mean = y.sum(axis=rb) / nz
+    np.subtract(y, np.expand_dims(mean, rb), out=y)
+    np.copyto(y, 0.0, where=bad)
+    corr = y.sum(axis=rb)
+    m2 = _sum_squares(y, rb) - corr * corr / nz
+    mean += corr / nz
+    return n, mean, m2, missing.sum(axis=rb), nonpositive.sum(axis=rb)
+
+
+_LETTERS = "abcdefghijklmnopqrstuvwxyz"
+
+
+def _sum_squares(d: np.ndarray, rb: tuple[int, ...]) -> Any:
+    """``(d * d).sum(axis=rb)`` in one pass without a temporary: a dot product per element when the
+    reduced axis is the last (``np.vecdot``), ``np.einsum`` otherwise."""
+    if rb == (d.ndim - 1,) and d.ndim <= 2:
+        return np.vecdot(d, d)  # over the last axis
+    sub = _LETTERS[: d.ndim]
+    keep = "".join(c for i, c in enumerate(sub) if i not in rb)
+    return np.einsum(f"{sub},{sub}->{keep}", d, d)
+
+
+class _Accumulator:
+    """Moments of the kept elements, merged block by block (Chan et al. 1979) in place.
+
+    Threads may fill disjoint parts of one accumulator: nothing is allocated after construction (the
+    zeroed count arrays cost no memory until written).
+    """
+
+    def __init__(self, shape: tuple[int, ...]) -> None:
+        self.n = np.zeros(shape, dtype=np.int64)
+        self.mean = np.zeros(shape, dtype=np.float64)
+        self.m2 = np.zeros(shape, dtype=np.float64)
+        self.missing = np.zeros(shape, dtype=np.int64)
+        self.nonpositive = np.zeros(shape, dtype=np.int64)
+
+    def add(self, out: tuple[Any, ...], n: Any, mean: np.ndarray, m2: np.ndarray, missing: Any,
+            nonpositive: Any) -> None:
+        """Merge the moments of one block into the elements ``out``; ``missing`` and ``nonpositive`` are
+        None when the block had no excluded value."""
+        m2 = np.maximum(m2, 0.0)
+        if missing is not None:
+            self.missing[out] += missing
+            self.nonpositive[out] += nonpositive
+            empty = n == 0
+            mean = np.where(empty, 0.0, mean)
+            m2 = np.where(empty, 0.0, m2)
+        na = self.n[out]
+        if not np.any(na):  # the first block for these elements: no merge, exactly its moments
+            self.n[out] = n
+            self.mean[out] = mean
+            self.m2[out] = m2
+            return
+        tot = na + n
+        w = n / np.maximum(tot, 1)
+        delta = mean - self.mean[out]
+        self.mean[out] += delta * w
+        self.m2[out] += m2 + delta * delta * (na * w)
+        self.n[out] = tot
+
+    def merge(self, other: _Accumulator) -> None:
+        """Add the moments held by ``other`` (same shape) to these."""
+        self.add((), other.n, other.mean, other.m2, other.missing, other.nonpositive)
+
+    def result(self, kept_order: list[int], shape: tuple[int, ...]) -> LogMoments:
+        """The moments with the kept axes back in their original order (``kept_order`` from
+        :func:`_memory_view`, ``shape`` the input's)."""
+        back = sorted(range(len(kept_order)), key=lambda j: kept_order[j])
+        unfused = tuple(shape[i] for i in kept_order)
+
+        def orig(a: np.ndarray) -> np.ndarray:
+            return a.reshape(unfused).transpose(back).copy()  # C order
+
+        n = self.n
+        return LogMoments(
+            n=orig(n), mean_log=orig(np.where(n > 0, self.mean, np.nan)),
+            m2_log=orig(np.where(n > 0, self.m2, np.nan)),
+            n_missing=orig(self.missing), n_nonpositive=orig(self.nonpositive),
+        )
 
 
 def _moments_along(lv: LoggedValues, axes: tuple[int, ...], *, own_logs: bool = False) -> LogMoments:

@@ -26,6 +26,7 @@ __all__ = [
     "exp_values",
     "log_base_factor",
     "log_values",
+    "posinf_message",
     "to_logs",
 ]
 
@@ -136,10 +137,7 @@ def to_logs(values: Any, *, where: str = "the input") -> LoggedValues:
                             nonpositive=np.zeros(y.shape, dtype=bool), clean=True)
     posinf = y == np.inf  # only log(+inf) is +inf
     if posinf.any():
-        raise ValueError(
-            f"{where} holds {int(posinf.sum())} value(s) of +inf; logstats refuses +inf always "
-            "(replace it with NaN to have it skipped and counted as missing)"
-        )
+        raise ValueError(posinf_message(where, int(posinf.sum())))
     missing = np.isnan(x)
     nonpositive = x <= 0  # NaN compares False; -inf is <= 0
     y[nonpositive] = np.nan  # log gave -inf for 0 and NaN for negatives: make both NaN
@@ -182,6 +180,14 @@ def exp_values(values: Any, *, base: Any = "e", where: str = "the input") -> np.
             return np.exp(y)
         b = {np.log(2.0): 2.0, np.log(10.0): 10.0}[factor]
         return np.power(b, y)
+
+
+def posinf_message(where: str, count: int) -> str:
+    """The refusal of ``+inf`` (``count`` values of it in ``where``)."""
+    return (
+        f"{where} holds {count} value(s) of +inf; logstats refuses +inf always "
+        "(replace it with NaN to have it skipped and counted as missing)"
+    )
 
 
 def nonpositive_message(where: str, count: int, groups: Sequence[Any] | None = None) -> str:
