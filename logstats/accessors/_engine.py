@@ -355,9 +355,9 @@ def compute(method: Method | str, data: Any, *, nred: int = 1, codes: np.ndarray
         except ValueError as exc:  # +inf: say in which groups
             if "+inf" not in str(exc) or codes is None:
                 raise
-            hit = np.isposinf(as_float_array(arr, where=where))
-            raise ValueError(inf_message(where, hit.reshape(-1, hit.shape[-1]).any(axis=0), codes,
-                                         labels)) from None
+            hit = np.asarray(np.isposinf(as_float_array(arr, where=where)))
+            per_value = np.asarray(hit.reshape(-1, hit.shape[-1]).any(axis=0))
+            raise ValueError(inf_message(where, per_value, codes, labels)) from None
         out = finalize_moments(md, m, policy=policy, params=params, where=where, labels=labels)
     for _p, addon in addons:
         more = compute(addon, data, nred=nred, codes=codes, ngroups=ngroups, policy=policy,

@@ -233,8 +233,7 @@ def value_items(df: pd.DataFrame, columns: Any,
         raise KeyError(f"columns {missing!r} are not in the data; there are {labels!r}")
     items = []
     for c in wanted:
-        for i in np.flatnonzero([_same_label(c, x) for x in labels]):
-            items.append((c, int(i)))
+        items += [(c, int(i)) for i in np.flatnonzero([_same_label(c, x) for x in labels])]
     bad = [(c, i) for c, i in items if not _is_value_dtype(df.dtypes.iloc[i])]
     if bad:
         kinds = ", ".join(f"{c!r} ({df.dtypes.iloc[i]})" for c, i in bad)
