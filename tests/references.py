@@ -44,3 +44,10 @@ REFERENCE_TABLE = {
         "scipy.stats.ttest_1samp(ln x).confidence_interval(), back-transformed",
     ),
 }
+
+
+# The outside reference of every declared statistic, as methods.py states it (the same text the
+# generated docstrings and the benchmarks show); tests/test_contract.py checks none is missing.
+from logstats.methods import METHODS  # noqa: E402
+
+DECLARED_REFERENCES = {name: m.reference for name, m in METHODS.items() if m.reduction != "transform"}

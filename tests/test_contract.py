@@ -187,3 +187,9 @@ def test_import_loads_neither_dask_nor_matplotlib():
             "if m in sys.modules]; print(','.join(bad))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == ""
+
+
+def test_every_statistic_names_its_outside_reference():
+    from tests.references import DECLARED_REFERENCES
+
+    assert all(DECLARED_REFERENCES.values()), [k for k, v in DECLARED_REFERENCES.items() if not v]

@@ -189,9 +189,10 @@ def _is_value_dtype(dtype: Any) -> bool:
 
 #: Integer columns whose name marks them as identifiers are left out of the default value columns: a
 #: name whose last word (words split at ``_``, ``-``, ``.`` or a space; case-insensitive) is one of
-#: these, e.g. ``cell_id``, ``ID``, ``index``, ``sample_no``. Name such a column in ``columns=`` to
-#: summarise it anyway. Float columns and other names (``well``, ``plate``) stay values.
-IDENTIFIER_WORDS = ("id", "idx", "index", "no", "nr", "number", "code", "uid", "key")
+#: these, e.g. ``cell_id``, ``ID``, ``index``, ``sample_no``, or an integer column named ``cell`` (in
+#: one-row-per-cell tables that is the cell's number). Name such a column in ``columns=`` to summarise
+#: it anyway. Float columns and other names (``well``, ``plate``) stay values.
+IDENTIFIER_WORDS = ("id", "idx", "index", "no", "nr", "number", "code", "uid", "key", "cell")
 
 
 def looks_like_identifier(label: Hashable, dtype: Any) -> bool:
