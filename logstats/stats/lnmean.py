@@ -56,7 +56,10 @@ def lognormal_mean(
         and advanced, as given). The same seed and the same input give identical results; numpy's
         global random state is never touched. A group's draws depend on its position in the input.
     n_draws : int
-        Monte Carlo draws (``"gci"``) or bootstrap resamples (``"bootstrap"``) per group.
+        Monte Carlo draws (``"gci"``) or bootstrap resamples (``"bootstrap"``) per group. Memory stays
+        bounded whatever the group sizes: at most about 2**21 random numbers (16 MB) are held at once,
+        also within one large group (resamples are drawn in batches), plus O(n) for the values and
+        O(n_draws) per group being finished.
     values, codes : array_like, 1-D, optional
         Only for ``"bootstrap"``: the raw values and their group codes from which ``m`` was built
         (``m`` must then be 1-D with one element per group). Values that are missing or ``<= 0`` are
@@ -352,10 +355,18 @@ def _bootstrap_bca(m: LogMoments, values: Any, codes: Any, cl: float, random_sta
         rows = np.repeat(starts[g], cnt[g]) + (np.arange(col_start.size) - col_start)
         dloc = d[rows]
         col_n = np.repeat(cnt[g], cnt[g])
-        pick = col_start + np.minimum((rng.random((B, rows.size)) * col_n).astype(np.intp), col_n - 1)
-        dd = dloc[pick]
-        s1 = np.add.reduceat(dd, loc_starts, axis=1)
-        s2 = np.add.reduceat(dd * dd, loc_starts, axis=1)
+        # resamples in batches, so that one large group also stays within _DRAW_BUDGET numbers; the
+        # uniform draws come in the same order as one (B, rows) call, so results do not depend on it
+        per_batch = max(1, _DRAW_BUDGET // max(rows.size, 1))
+        s1 = np.empty((B, g.size))
+        s2 = np.empty((B, g.size))
+        for r0 in range(0, B, per_batch):
+            r1 = min(B, r0 + per_batch)
+            pick = col_start + np.minimum((rng.random((r1 - r0, rows.size)) * col_n).astype(np.intp),
+                                          col_n - 1)
+            dd = dloc[pick]
+            s1[r0:r1] = np.add.reduceat(dd, loc_starts, axis=1)
+            s2[r0:r1] = np.add.reduceat(dd * dd, loc_starts, axis=1)
         stat_b = (ybar[g] + s1 / ng + 0.5 * (s2 - s1 * s1 / ng) / (ng - 1.0)).T  # (groups, B)
         # estimate on the log scale, and leave-one-out (jackknife) values in closed form
         t1 = np.add.reduceat(dloc, loc_starts)
