@@ -82,6 +82,7 @@ class Method:
     row_params: tuple[str, ...] = ()  # keywords that may hold one value per data value (aligned like data)
     variant: tuple[str, str] | None = None  # (keyword, method): a true keyword switches to that method
     pools_groups: bool = False  # one result for all groups of ``by`` together (no group axis)
+    positional: tuple[str, ...] = ()  # keywords that come first and may be given by position
     expand: str | None = None  # a keyword that may be a list: one result per item, stacked on a new level
     reference: str = ""  # the outside reference of the tests and benchmarks
     notes: str = ""  # docstring body shared by every container
@@ -385,6 +386,7 @@ declare(Method(
                                  "aligned "
                                  "array holding one limit per group.", "Any"), _LEVEL, _LIMIT),
     censored="logstats.stats.finalize:exceedance_values", censored_fields=_CENSORED, row_params=("limit",),
+    positional=("limit",),
     dask="loads",
     reference="scipy.stats.nct.cdf inverted in the non-centrality (brentq per group); simulated coverage",
     notes="``fraction`` = 1 − Φ((ln L − ȳ)/s), the plug-in estimate (s with ddof=1); ``ci_low``/``ci_high`` "

@@ -115,7 +115,9 @@ def docstring(md: Method, family: Family) -> str:
     for n, _d, doc in family.leading:
         lines += [f"{n}", f"    {doc}"]
     for p in md.params:
-        lines += [f"{p.name} : {p.annotation}, default {p.default!r}", f"    {p.doc}"]
+        first = " May also be given first, by position (a number first is read as it)." \
+            if p.name in md.positional else ""
+        lines += [f"{p.name} : {p.annotation}, default {p.default!r}", f"    {p.doc}{first}"]
     for n, _d, doc in family.trailing:
         lines += [f"{n}", f"    {doc}"]
     lines += ["", "Returns", "-------"]
@@ -131,11 +133,24 @@ def docstring(md: Method, family: Family) -> str:
     return "\n".join(lines)
 
 
+def _is_quantity(value: Any) -> bool:
+    """A number or an array of numbers (not a label): what a positional ``limit`` looks like."""
+    if isinstance(value, (bool, np.bool_, str)):
+        return False
+    if isinstance(value, numbers.Real):
+        return True
+    return hasattr(value, "dtype") and getattr(value, "ndim", 0) >= 1
+
+
 def _make(md: Method, family: Family) -> Callable[..., Any]:
     sig = signature(md, family)
     name = md.name
 
     def method(self: Any, *args: Any, **kwargs: Any) -> Any:
+        if md.positional and args and _is_quantity(args[0]) and md.positional[0] not in kwargs:
+            # exceedance(10.0, by="g"): a number first is the limit; a label first is by= / dim=
+            kwargs[md.positional[0]] = args[0]
+            args = args[1:]
         try:
             bound = sig.bind(self, *args, **kwargs)
         except TypeError as exc:
