@@ -13,6 +13,7 @@ from scipy import stats
 
 from logstats.core.moments import LogMoments
 from logstats.core.transform import to_logs
+from logstats.stats._common import group_value_order
 
 __all__ = [
     "ci_gmean",
@@ -135,7 +136,7 @@ def linear_fields(values: np.ndarray, codes: np.ndarray, ngroups: int, *, ddof: 
     """Linear-scale ``median``, ``mean`` and ``sd`` (``ddof``, default 1) of the values the log
     statistics use (positive, finite), per group.
 
-    Vectorised: one ``np.lexsort`` by (group, value) gives every group's median; mean and SD are taken
+    Vectorised: one sort by (group, value) gives every group's median; mean and SD are taken
     on values scaled by their group's maximum, so inputs near 1e300 do not overflow.
     """
     lv = to_logs(values, where=where)
@@ -143,7 +144,7 @@ def linear_fields(values: np.ndarray, codes: np.ndarray, ngroups: int, *, ddof: 
     keep = lv.valid & (codes >= 0)
     xs, cs = x[keep], np.asarray(codes)[keep]
     n = np.bincount(cs, minlength=ngroups).astype(np.float64)
-    order = np.lexsort((xs, cs))
+    order = group_value_order(xs, cs, ngroups)
     xs_sorted, cs_sorted = xs[order], cs[order]
     start = np.concatenate([[0], np.cumsum(n)[:-1]]).astype(np.intp)
     lo = start + np.maximum((n.astype(np.intp) - 1) // 2, 0)

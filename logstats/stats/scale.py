@@ -19,7 +19,14 @@ from scipy import special
 
 from logstats.core.moments import moments_by_codes
 from logstats.core.transform import check_nonpositive, to_logs
-from logstats.stats._common import _LOG_2PI, _count, _detection_limits, _group_codes, _values_1d
+from logstats.stats._common import (
+    _LOG_2PI,
+    _count,
+    _detection_limits,
+    _group_codes,
+    _values_1d,
+    group_value_order,
+)
 from logstats.stats.censored import _censored_newton, fit_lognormal
 from logstats.stats.normality import (
     _SW_MAX_N,
@@ -267,7 +274,7 @@ def _sorted_groups(x: np.ndarray, codes: np.ndarray, G: int) -> dict[str, Any]:
     n = np.asarray(mom.n, dtype=np.int64)
     nf = n.astype(np.float64)
     use = np.flatnonzero(lv.valid & (codes >= 0))
-    order = use[np.lexsort((x[use], codes[use]))]
+    order = use[group_value_order(x[use], codes[use], G)]
     xs, ys, gs = x[order], lv.y[order], codes[order]
     starts = np.zeros(G, dtype=np.intp)
     np.cumsum(n[:-1], out=starts[1:])
