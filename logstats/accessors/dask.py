@@ -411,7 +411,8 @@ class _DaskFrameBase(FigureMethods):
         md = METHODS[name]
         limit = args.get("detection_limit")
         params = {p.name: args[p.name] for p in md.params if p.name != "detection_limit"}
-        lazy_ok = (md.reduction == "moments" and limit is None and not params.get("linear")
+        listed = md.expand is not None and isinstance(params.get(md.expand), (list, tuple, np.ndarray))
+        lazy_ok = (md.reduction == "moments" and limit is None and not params.get("linear") and not listed
                    and not md.needs_values(params, Policy(nonpositive="drop")))
         if not lazy_ok:
             return self._loaded(name, args)
