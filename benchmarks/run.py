@@ -49,7 +49,7 @@ from benchmarks.registry import ALONG, GROUPED
 ROOT = Path(__file__).resolve().parent.parent
 RESULTS = Path(__file__).resolve().parent / "results"
 README = Path(__file__).resolve().parent / "README.md"
-SECTIONS = ("grouped", "xarray", "memory", "fit", "out_of_core")
+SECTIONS = ("grouped", "xarray", "memory", "fit", "out_of_core", "methods", "layouts", "startup")
 SLOW_CALL = 10.0  # seconds: a reference this slow is timed once
 
 FULL: dict[str, Any] = {
@@ -63,6 +63,9 @@ FULL: dict[str, Any] = {
     "fit": (200, 500),
     "out_of_core_gb": 4.0,
     "distributed": True,
+    "slow_call": SLOW_CALL,
+    "startup_runs": 5,
+    "startup_warm": True,
 }
 QUICK: dict[str, Any] = {
     "grouped": [(100_000, 100, "int"), (100_000, 1_000, "int"), (100_000, 1_000, "str")],
@@ -74,6 +77,9 @@ QUICK: dict[str, Any] = {
     "fit": (20, 200),
     "out_of_core_gb": 0.1,
     "distributed": False,
+    "slow_call": 0.2,  # a smoke run: a call slower than this is timed once (its first call)
+    "startup_runs": 3,
+    "startup_warm": False,  # the sections before have read every file already
 }
 
 
@@ -108,17 +114,22 @@ def _time(fn: Callable[[], Any]) -> tuple[float, Any]:
     return time.perf_counter() - t0, out
 
 
-def interleaved(fns: dict[str, Callable[[], Any]], repeats: int) -> tuple[dict[str, float], dict[str, Any]]:
-    """Median seconds per implementation, calls interleaved; also each first call's result."""
+def interleaved(fns: dict[str, Callable[[], Any]], repeats: int,
+                slow: float = SLOW_CALL) -> tuple[dict[str, float], dict[str, Any]]:
+    """Median seconds per implementation, calls interleaved; also each first call's result.
+
+    An implementation whose first call takes longer than ``slow`` seconds is not repeated: that call
+    is its measurement.
+    """
     times: dict[str, list[float]] = {k: [] for k in fns}
     results: dict[str, Any] = {}
     for k, fn in fns.items():
         t, results[k] = _time(fn)
-        if t > SLOW_CALL:
+        if t > slow:
             times[k].append(t)  # too slow to repeat: the first call is the measurement
     for _ in range(repeats):
         for k, fn in fns.items():
-            if times[k] and times[k][0] > SLOW_CALL:
+            if times[k] and times[k][0] > slow:
                 continue
             gc.collect()
             times[k].append(_time(fn)[0])
@@ -159,7 +170,7 @@ def bench_grouped(cfg: dict[str, Any], repeats: int) -> list[dict[str, Any]]:
         sub = df if factor == 1 else df[df["g"] < groups // factor]
         n_sub = int(sub["g"].nunique())
         t_scipy, res_scipy = interleaved({"scipy": lambda sub=sub, r=scipy_ref: r.run(sub, "g", "x")},
-                                         repeats if groups <= 1_000 else 1)
+                                         repeats if groups <= 1_000 else 1, cfg["slow_call"])
         scipy_s = t_scipy["scipy"] * (groups / n_sub)
         rec = {
             "section": "grouped", "statistic": stat, "rows": rows, "groups": groups, "key": key,
@@ -220,7 +231,7 @@ def bench_fit(cfg: dict[str, Any], repeats: int) -> list[dict[str, Any]]:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # scipy's optimiser may warn on a group; the timing still counts
         t, res = interleaved({"ours": lambda: pairing.ours(df, "g", "x", "dl"),
-                              "scipy": lambda: ref.run(df, "g", "x", "dl")}, repeats)
+                              "scipy": lambda: ref.run(df, "g", "x", "dl")}, repeats, cfg["slow_call"])
     ours, theirs = res["ours"], res["scipy"]
     rec = {
         "section": "fit", "groups": groups, "per_group": per_group,
@@ -232,6 +243,113 @@ def bench_fit(cfg: dict[str, Any], repeats: int) -> list[dict[str, Any]]:
     }
     _progress(rec)
     return [rec]
+
+
+def agreement(ours: Any, ref: Any, fields: tuple[str, ...], absolute: tuple[str, ...] = ()) -> dict[str, Any]:
+    """How far two tables agree on their shared fields, rows matched by index.
+
+    ``max_rel``: the largest relative difference over the fields not in ``absolute``; ``max_abs``: the
+    largest absolute difference over those in ``absolute`` (values near zero, such as a Box-Cox power);
+    ``nan_mismatch``: entries finite on one side only; ``compared``: rows compared.
+    """
+    rel = ab = 0.0
+    mismatch = rows = 0
+    for f in fields:
+        a, b = ours[f].align(ref[f], join="inner")
+        a, b = a.to_numpy(dtype=float), b.to_numpy(dtype=float)
+        rows = max(rows, a.size)
+        fa, fb = np.isfinite(a), np.isfinite(b)
+        mismatch += int(np.sum(fa != fb))
+        ok = fa & fb
+        if not ok.any():
+            continue
+        d = np.abs(a[ok] - b[ok])
+        if f in absolute:
+            ab = max(ab, float(d.max()))
+        else:
+            rel = max(rel, float(np.max(d / np.maximum(np.abs(b[ok]), 1e-300))))
+    return {"max_rel": rel, "max_abs": ab if absolute else None, "nan_mismatch": mismatch, "compared": rows}
+
+
+def bench_methods(cfg: dict[str, Any], repeats: int) -> list[dict[str, Any]]:
+    """Every declared statistic (benchmarks/cases.py) against what a user would otherwise write."""
+    from benchmarks.cases import CASES, warm_up
+
+    warm_up()
+    gc.freeze()  # the modules just imported: see main()
+    mode = "quick" if cfg is QUICK else "full"
+    out = []
+    for case in CASES:
+        t_case = time.perf_counter()
+        size = case.size[mode]
+        data = case.data(size)
+        fns: dict[str, Callable[[], Any]] = {"ours": lambda c=case, d=data: c.ours(d)}
+        fns.update({r.label: (lambda r=r, d=data: r.run(d)) for r in case.references})
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # scipy/statsmodels optimisers may warn; the timing still counts
+            t, res = interleaved(fns, repeats, cfg["slow_call"])
+        ours = case.as_fields(res["ours"])
+        for ref in case.references:
+            rec = {"section": "methods", "case": case.name, "statistic": case.statistic,
+                   "groups": size[0], "per_group": size[1], "rows": int(len(data)) if data is not None else 0,
+                   "ours": case.ours_text, "reference": ref.label, "reference_code": ref.source,
+                   "ours_s": t["ours"], "ref_s": t[ref.label], "ref_over_ours": t[ref.label] / t["ours"],
+                   "fields": list(ref.fields), "note": case.note, "wall_s": time.perf_counter() - t_case,
+                   **agreement(ours, res[ref.label], ref.fields, case.absolute)}
+            out.append(rec)
+            _progress(rec)
+    return out
+
+
+STARTUP = {  # label -> argv after the interpreter
+    "import logstats": ["-c", "import logstats"],
+    "logstats --help": ["-m", "logstats", "--help"],
+    "import pandas, xarray, scipy.stats": ["-c", "import pandas, xarray, scipy.stats"],
+}
+_HEAVY = ("dask", "matplotlib", "statsmodels", "pyarrow", "distributed")
+
+
+def bench_startup(cfg: dict[str, Any], repeats: int) -> list[dict[str, Any]]:
+    """Whole-process start-up times (median of ``startup_runs`` subprocesses, one untimed first run)."""
+    env = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
+
+    def run(argv: list[str]) -> float:
+        t0 = time.perf_counter()
+        subprocess.run([sys.executable, *argv], cwd=ROOT, env=env, check=True, capture_output=True)
+        return time.perf_counter() - t0
+
+    if cfg["startup_warm"]:
+        for argv in STARTUP.values():
+            run(argv)  # untimed: the page cache
+    times: dict[str, list[float]] = {k: [] for k in STARTUP}
+    for _ in range(cfg["startup_runs"]):
+        for label, argv in STARTUP.items():
+            times[label].append(run(argv))
+    base = statistics.median(times["import pandas, xarray, scipy.stats"])
+    code = ("import sys, json; before = set(sys.modules); import logstats; "
+            f"print(json.dumps(sorted({{m.split('.')[0] for m in sys.modules}} & set({list(_HEAVY)!r}))))")
+    proc = subprocess.run([sys.executable, "-c", code], cwd=ROOT, env=env, capture_output=True, text=True,
+                          check=True)
+    heavy = json.loads(proc.stdout.strip().splitlines()[-1])
+    out = []
+    for label in STARTUP:
+        med = statistics.median(times[label])
+        rec = {"section": "startup", "command": label, "median_s": med, "runs": len(times[label]),
+               "over_baseline": med / base,
+               "imports_heavy": heavy if label == "import logstats" else None}
+        out.append(rec)
+        _progress(rec)
+    return out
+
+
+def bench_layouts(cfg: dict[str, Any], repeats: int) -> list[dict[str, Any]]:
+    """Moment statistics in every memory layout and dtype (benchmarks/layouts.py, when present)."""
+    try:
+        from benchmarks.layouts import layout_cases
+    except ImportError:
+        print("layouts: skipped (benchmarks/layouts.py is not there)")
+        return [{"section": "layouts", "skipped": "benchmarks/layouts.py not present"}]
+    return layout_cases(cfg is QUICK, repeats)
 
 
 # --------------------------------------------------------------------------- memory (subprocesses)
@@ -347,7 +465,8 @@ def bench_out_of_core(cfg: dict[str, Any], repeats: int) -> list[dict[str, Any]]
 
 
 BENCHES = {"grouped": bench_grouped, "xarray": bench_xarray, "memory": bench_memory, "fit": bench_fit,
-           "out_of_core": bench_out_of_core}
+           "out_of_core": bench_out_of_core, "methods": bench_methods, "layouts": bench_layouts,
+           "startup": bench_startup}
 
 
 # --------------------------------------------------------------------------- reporting
@@ -459,24 +578,72 @@ def table(results: list[dict[str, Any]], info: dict[str, Any]) -> str:
             lines.append(f"| {r['scheduler']} | {r['nbytes'] / 1e9:.1f} GB | {r['chunk_mb']:.0f} MB | "
                          f"{_fmt_s(r['seconds'])} | {peak} | {r['matches_parameters']} |")
         lines.append("")
+    ms = [r for r in results if r["section"] == "methods"]
+    if ms:
+        lines += ["**Every method** (`df.logstats.<method>(by=\"g\", columns=\"x\", ...)` on invented "
+                  "log-normal groups of varying size; ratio = reference time / ours, above 1 means logstats "
+                  "is faster; "
+                  "agree: largest relative difference of the fields both compute, absolute where marked)", "",
+                  "| case | groups x values | reference | ours | reference time | reference / ours | agree | "
+                  "fields |",
+                  "|---|---|---|---:|---:|---:|---|---|"]
+        for r in ms:
+            agree = f"{r['max_rel']:.0e}"
+            if r["max_abs"] is not None:
+                agree += f"; abs {r['max_abs']:.0e}"
+            if r["nan_mismatch"]:
+                agree += f"; {r['nan_mismatch']} NaN on one side"
+            size = f"{r['groups']:,} x ~{r['per_group']}" if r["per_group"] else f"{r['groups']:,}"
+            lines.append(f"| {r['case']} | {size} | {r['reference']}: {r['reference_code']} | "
+                         f"{_fmt_s(r['ours_s'])} | {_fmt_s(r['ref_s'])} | {r['ref_over_ours']:,.2f} | "
+                         f"{agree} | "
+                         f"{', '.join(r['fields'])} |")
+        notes = sorted({f"{r['case']}: {r['note']}" for r in ms if r["note"]})
+        lines += [""] + [f"* {n}." for n in notes] + ([""] if notes else [])
+    lay = [r for r in results if r["section"] == "layouts" and "skipped" not in r]
+    if lay:
+        from benchmarks.layouts import layout_table
+
+        lines += [layout_table(lay), ""]
+    st = [r for r in results if r["section"] == "startup"]
+    if st:
+        lines += [f"**Start-up**: whole processes, median of {st[0]['runs']} runs each (interleaved)",
+                  "", "| command | median | / `import pandas, xarray, scipy.stats` |", "|---|---:|---:|"]
+        for r in st:
+            lines.append(f"| `{r['command']}` | {_fmt_s(r['median_s'])} | {r['over_baseline']:.2f} |")
+        heavy = next(r["imports_heavy"] for r in st if r["imports_heavy"] is not None)
+        lines += ["", "`import logstats` imports " + (", ".join(heavy) if heavy else "none") + " of "
+                  + ", ".join(_HEAVY) + " (dask and matplotlib must not be among them; pandas itself "
+                  "imports pyarrow when it is installed).", ""]
     return "\n".join(lines)
 
 
 def _progress(rec: dict[str, Any]) -> None:
     brief = {k: (f"{v:.4g}" if isinstance(v, float) else v) for k, v in rec.items()
-             if not isinstance(v, (list, dict))}
+             if not isinstance(v, (list, dict)) and k not in ("section", "ours", "reference_code", "note")}
     print("  " + ", ".join(f"{k}={v}" for k, v in brief.items()), flush=True)
 
 
-def update_readme(text: str, quick: bool) -> None:
+def update_readme(text: str, quick: bool, only: list[str] | None = None) -> None:
+    """Rewrite the results block; with ``only`` (some sections), keep the rest of the block and put
+    this run's tables in a sub-block of their own (replacing an earlier one for the same sections)."""
     start, end = "<!-- results:start -->", "<!-- results:end -->"
     readme = README.read_text()
     if start not in readme or end not in readme:
         raise SystemExit(f"{README} has no {start} ... {end} block to update")
     head, rest = readme.split(start, 1)
-    _, tail = rest.split(end, 1)
+    block, tail = rest.split(end, 1)
     stamp = _dt.date.today().isoformat() + (" (--quick)" if quick else "")
-    README.write_text(f"{head}{start}\nLatest run: {stamp}.\n\n{text}\n{end}{tail}")
+    if not only or set(only) == set(SECTIONS):
+        README.write_text(f"{head}{start}\nLatest run: {stamp}.\n\n{text}\n{end}{tail}")
+        return
+    key = " ".join(s for s in SECTIONS if s in only)
+    sub_start, sub_end = f"<!-- sections:{key} -->", f"<!-- /sections:{key} -->"
+    if sub_start in block and sub_end in block:
+        before, after = block.split(sub_start, 1)
+        block = before + after.split(sub_end, 1)[1]
+    sub = f"{sub_start}\nSections {', '.join(key.split())}: run {stamp}.\n\n{text}\n{sub_end}\n"
+    README.write_text(f"{head}{start}{block.rstrip()}\n\n{sub}{end}{tail}")
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -495,7 +662,11 @@ def main(argv: list[str] | None = None) -> int:
     for name in SECTIONS:
         if name in args.only:
             print(f"[{name}]", flush=True)
+            t_section = time.perf_counter()
+            gc.collect()
+            gc.freeze()  # what is alive now is never garbage: keeps the gc.collect() before each call short
             results += BENCHES[name](cfg, repeats)
+            print(f"[{name}: {time.perf_counter() - t_section:.1f} s]", flush=True)
     elapsed = time.perf_counter() - t0
     text = table(results, info)
     print()
@@ -511,7 +682,7 @@ def main(argv: list[str] | None = None) -> int:
         p.write_text(json.dumps(payload, indent=1, default=str))
     print("wrote " + ", ".join(str(p) for p in paths))
     if args.readme:
-        update_readme(text, args.quick)
+        update_readme(text, args.quick, args.only)
     return 0
 
 
