@@ -1,7 +1,19 @@
 """The ``logstats`` command line: log-scale statistics on CSV, TSV, Parquet and Excel tables.
 
-Subcommands ``summary``, ``compare``, ``fit``, ``check``, ``report`` and ``demo``; ``logstats
-SUBCOMMAND --help`` shows each one's options with an example. Tables go to the terminal, aligned,
+Subcommands ``summary``, ``compare``, ``fit``, ``check``, ``tail`` (percentiles, tolerance limits,
+exceedance of a limit), ``components`` (variance components of nested designs), ``plan`` (replicates
+needed for a fold change), ``report`` and ``demo``; ``logstats SUBCOMMAND --help`` shows each one's
+options with an example.
+
+Non-detects as labs write them: a value column holding ``<0.5``, ``< 8``, ``ND``, ``n.d.``, ``<LOD``,
+``<LOQ`` or ``BDL`` is read with :func:`logstats.split_censored` by itself (``--nd-limit`` gives the
+limit of the keyword entries), the command says on standard error how many entries it read and at
+which limits, and every statistic then uses the censored likelihood: nothing is substituted.
+``--detection-limit NUMBER|COLUMN`` censors measured values at or below a limit as well.
+
+Upper-tail results (``tail``, ``report --limit``) are often compared with regulatory, exposure or
+specification limits: for clinical, regulatory or safety decisions use validated tools, qualified
+review, and the local rules and licensed practice that apply. Tables go to the terminal, aligned,
 or with ``--output FILE`` to a ``.csv``, ``.tsv`` or ``.parquet`` file; figures with ``--plot FILE``.
 
 Tables as labs export them: ``--sep``, ``--decimal`` and ``--encoding`` say how a text table is
@@ -69,6 +81,10 @@ _HINTS: tuple[tuple[str, str], ...] = (
     (r"\bdetection_limit=", "--detection-limit "),
     (r"\bcolumns=", "--value "),
     (r"\breplicate=", "--replicate "),
+    (r"\bnd_limit=", "--nd-limit "),
+    (r"\bmethod='(cox|modified_cox|land|gci|bootstrap)'", r"--arithmetic-mean \1"),
+    (r"\bmargin=", "--margin "),
+    (r"\bnested=", "--nested "),
     (r"\breference=", "--reference "),
     (r"\bconfidence_level=", "--confidence-level "),
     (r"\bequivalence=", "--equivalence "),
@@ -402,6 +418,11 @@ def _check_numeric(df: pd.DataFrame, path: str, name: Hashable, option: str = "-
     bad = parsed.isna() & s.notna()
     if not bad.any():
         return
+    texts = s[bad].astype(str)
+    flags = {t: _readable_flag(t) for t in texts.unique()[:1000]}  # non-detect notation is not at fault
+    bad = bad & ~s.astype(str).map(lambda t: flags.get(t) is not None)
+    if not bad.any():
+        return
     pos = int(bad.to_numpy().argmax())
     shown = str(s.iloc[pos])
     hint = ""
@@ -411,8 +432,8 @@ def _check_numeric(df: pd.DataFrame, path: str, name: Hashable, option: str = "-
     raise DataError(
         f"{path}: column {name!r} is not numeric: {int(bad.sum())} entr{'y' if bad.sum() == 1 else 'ies'} "
         f"cannot be read as numbers, the first {shown!r} in data row {pos + 1} (line {pos + 2} of "
-        f"a CSV with a header).{hint} Fix or blank such entries (empty cells count as missing), or "
-        f"choose another {option}"
+        f"a CSV with a header).{hint} Non-detects written '<0.5', 'ND', 'n.d.', '<LOD', '<LOQ' or 'BDL' "
+        f"are read as censored values by themselves; correct the other entries, or choose another {option}"
     )
 
 
@@ -424,6 +445,125 @@ def _order_levels(df: pd.DataFrame, by: Hashable, reference: Any) -> tuple[pd.Da
         return reference_first(df, by, reference)
     except ValueError as exc:
         raise DataError(f"{_cli_hint(str(exc))}. Pass --reference with one of them") from None
+
+
+def _readable_flag(entry: Any) -> int | None:
+    """How the library reads one entry (0 number, 1 ``<`` limit, 2 keyword, 3 missing), None if unreadable."""
+    import numpy as np
+
+    from logstats.core.notation import parse_censored
+
+    try:
+        return int(parse_censored(np.array([entry], dtype=object), nd_limit=1.0).flags[0])
+    except (TypeError, ValueError):
+        return None
+
+
+def _nd_limit(text: str | None, df: pd.DataFrame, path: str) -> Any:
+    """``--nd-limit``: a positive number, or a column holding each row's limit (as a Series)."""
+    if text is None:
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        _check_column(df, path, text, "--nd-limit")
+        _check_numeric(df, path, text, "--nd-limit")
+        return df[{str(c): c for c in df.columns}[text]]
+    if not value > 0:
+        raise DataError(f"{path}: --nd-limit {text} must be a positive number or a column name")
+    return value
+
+
+def _limit_column(df: pd.DataFrame, value: Hashable) -> str:
+    name = f"{value} detection limit"
+    while name in df.columns:
+        name = f"{name}_"
+    return name
+
+
+def _plain_number(x: float) -> str:
+    return f"{x:.6g}"
+
+
+def _read_censored(df: pd.DataFrame, path: str, value: Hashable, nd: Any) -> pd.DataFrame | None:
+    """The value column read with :func:`logstats.split_censored` when it holds non-detects, else None.
+
+    None for a numeric column and for a text column with entries that are neither numbers, missing
+    nor non-detects (the caller then reports the first such entry as before).
+    """
+    import numpy as np
+
+    s = df[value]
+    if pd.api.types.is_numeric_dtype(s.dtype) or pd.api.types.is_bool_dtype(s.dtype):
+        return None
+    numeric = pd.to_numeric(s, errors="coerce")
+    odd = np.flatnonzero((numeric.isna() & s.notna()).to_numpy())
+    if odd.size == 0:
+        return None
+    seen: dict[str, int | None] = {}
+    keyword_rows = []
+    for pos in odd:  # stop at the first unreadable entry; distinct texts are read once
+        text = str(s.iloc[pos])
+        if text not in seen:
+            seen[text] = _readable_flag(text)
+        if seen[text] is None:
+            return None
+        if seen[text] == 2:
+            keyword_rows.append(int(pos))
+    if not any(f in (1, 2) for f in seen.values()):
+        return None
+    if keyword_rows and nd is None:
+        first = keyword_rows[0]
+        raise DataError(
+            f"{path}: column {value!r} holds {len(keyword_rows)} non-detect entr"
+            f"{'y' if len(keyword_rows) == 1 else 'ies'} written without a limit (such as "
+            f"{str(s.iloc[first])!r} in data row {first + 1}, line {first + 2} of a CSV with a header); pass "
+            "--nd-limit NUMBER (or --nd-limit COLUMN, one limit per row) with their detection limit"
+        )
+    try:
+        return logstats.split_censored(s, nd_limit=nd)
+    except ValueError as exc:  # e.g. --nd-limit column empty on a keyword row
+        raise DataError(f"{path}: {_cli_hint(str(exc)).replace('nd_limit=', '--nd-limit ')}") from None
+
+
+def _read_values(df: pd.DataFrame, args: argparse.Namespace, values: Sequence[Hashable]
+                 ) -> tuple[pd.DataFrame, dict[Hashable, Any]]:
+    """Value columns ready for the statistics, and each one's ``detection_limit=`` (None, number, column).
+
+    A text column holding non-detects (``<0.5``, ``ND`` …) is read with :func:`logstats.split_censored`:
+    the column becomes numbers and a hidden column holds each row's limit; ``--detection-limit`` then
+    applies to the measured entries (a value at or below it is censored too). Said on standard error.
+    """
+    path = args.table
+    given = _detection_limit(getattr(args, "detection_limit", None), df, path)
+    nd = _nd_limit(getattr(args, "nd_limit", None), df, path)
+    out = df
+    limits: dict[Hashable, Any] = {}
+    for v in values:
+        split = _read_censored(out, path, v, nd)
+        if split is None:
+            _check_numeric(out, path, v)
+            limits[v] = given
+            continue
+        lim = split["detection_limit"]
+        if given is not None:
+            other = out[given].astype(float) if isinstance(given, str) else float(given)
+            lim = lim.fillna(other)
+        col = _limit_column(out, v)
+        if out is df:
+            out = df.copy()
+        out[v] = split["value"]
+        out[col] = lim
+        n_cens, n_kw = int(split.attrs["n_censored"]), int(split.attrs["n_keyword"])
+        shown = [_plain_number(x) for x in split.attrs["limits"]]
+        lims = ", ".join(shown[:8]) + (f" and {len(shown) - 8} more" if len(shown) > 8 else "")
+        if n_cens:
+            _note(args, f"{path}: column {v!r}: read {n_cens} non-detect entr{'y' if n_cens == 1 else 'ies'} "
+                        f"as censored at their limits ({len(shown)} distinct: {lims})"
+                        + (f"; {n_kw} written as keywords, at --nd-limit" if n_kw else "")
+                        + ". Nothing is substituted: the statistics use the censored likelihood")
+        limits[v] = col if n_cens or given is not None else None
+    return out, limits
 
 
 def _detection_limit(text: str | None, df: pd.DataFrame, path: str) -> Any:
@@ -530,20 +670,69 @@ def _load(args: argparse.Namespace) -> tuple[pd.DataFrame, list[Hashable], list[
     values = _resolve_columns(df, args.table, args.value, "--value")
     if not values:
         raise UsageError("--value needs at least one column name")
-    for v in values:
-        _check_numeric(df, args.table, v)
+    df, args.limits = _read_values(df, args, values)
     keys = _resolve_columns(df, args.table, getattr(args, "by", None), "--by")
     for k in keys:
         if k in values:
             raise UsageError(f"--by {k!r} is also a --value column")
-    rep = getattr(args, "replicate", None)
-    if rep is not None:
-        _check_column(df, args.table, rep, "--replicate")
-        rep = {str(c): c for c in df.columns}[rep]
-        if rep in values:
-            raise UsageError(f"--replicate {rep!r} is also a --value column")
-        args.replicate = rep
+    for option in ("replicate", "nested"):
+        given = getattr(args, option, None)
+        if given is None:
+            continue
+        names = []
+        for rep in ([given] if isinstance(given, str) else list(given)):
+            _check_column(df, args.table, rep, f"--{option}")
+            rep = {str(c): c for c in df.columns}[rep]
+            if rep in values:
+                raise UsageError(f"--{option} {rep!r} is also a --value column")
+            if rep in keys:
+                raise UsageError(f"--{option} {rep!r} is also a --by column")
+            names.append(rep)
+        if option == "replicate":  # one --replicate: that column; several: nested, outermost first
+            args.replicate = names[0] if len(names) == 1 else names
+        else:
+            args.nested = names
     return df, values, keys
+
+
+def _unit_of(replicate: Any) -> Any:
+    """The experimental unit of ``--replicate``: the column, or the outermost of nested ones."""
+    return replicate[0] if isinstance(replicate, list) else replicate
+
+
+def _per_value(values: list[Hashable], limits: dict[Hashable, Any],
+               run: Callable[[Any, Any], Any]) -> pd.DataFrame:
+    """``run(columns, detection_limit)`` once when the value columns share one limit, else per column.
+
+    Results of single columns are stacked with a ``variable`` level (last), as the accessors do for
+    several columns.
+    """
+    specs = [limits.get(v) for v in values]
+    if all(repr(x) == repr(specs[0]) for x in specs):
+        res = run(_one_or_many(values), specs[0])
+        if isinstance(res, pd.Series):
+            res = res.to_frame().T
+            res.index = pd.Index(values, name="variable")
+        return res
+    frames = []
+    for v, dl in zip(values, specs):
+        res = run(v, dl)
+        if isinstance(res, pd.Series):
+            res = res.to_frame().T
+            res.index = pd.Index([v], name="variable")
+        else:
+            levels = list(range(1, res.index.nlevels + 1)) + [0]
+            res = pd.concat({v: res}, names=["variable"]).reorder_levels(levels)
+        frames.append(res)
+    return pd.concat(frames)
+
+
+def _censoring(limits: dict[Hashable, Any], values: Sequence[Hashable]) -> bool:
+    return any(limits.get(v) is not None for v in values)
+
+
+def _dl_kw(dl: Any) -> dict[str, Any]:
+    return {} if dl is None else {"detection_limit": dl}
 
 
 def _by(keys: Sequence[Hashable]) -> Any:
@@ -564,23 +753,72 @@ def _one_or_many(values: list[Hashable]) -> Hashable | list[Hashable]:
     return values[0] if len(values) == 1 else values
 
 
+_TAIL_CAUTION = ("Caution: upper-tail results (percentiles, tolerance limits, exceedance of a limit) are "
+                 "often compared with regulatory, exposure or specification limits. For clinical, "
+                 "regulatory or safety decisions use validated tools, qualified review, and the local "
+                 "rules and licensed practice that apply; this output supports and does not replace them.")
+
+
+def _footer(args: argparse.Namespace, text: str) -> None:
+    """A closing paragraph: under the table on standard output, or on standard error with --output."""
+    wrapped = textwrap.fill(text, min(_width(), 100))
+    if getattr(args, "output", None) is None:
+        print()
+        print(wrapped)
+    else:
+        print(wrapped, file=sys.stderr)
+
+
+def _censored_columns(res: pd.DataFrame, cols: list[str]) -> list[str]:
+    return cols + [c for c in ("n_censored",) if c in res.columns and c not in cols]
+
+
 def _cmd_summary(args: argparse.Namespace) -> int:
     df, values, keys = _load(args)
     df = in_data_order(df, keys)
+    censored = _censoring(args.limits, values)
+    if censored and args.linear:
+        raise UsageError("--linear does not combine with non-detects: a linear median, mean and SD would "
+                         "treat the limits as measurements (see --arithmetic-mean for the log-normal mean)")
     args.progress("summary")
-    res = df.logstats.summary(by=_by(keys), columns=_one_or_many(values),
-                              confidence_level=args.confidence_level, nonpositive=args.nonpositive,
-                              linear=args.linear)
-    if isinstance(res, pd.Series):
-        res = res.to_frame().T
-        res.index = pd.Index(values, name="variable")
+
+    def run(columns: Any, dl: Any) -> Any:
+        kw: dict[str, Any] = dict(by=_by(keys), columns=columns, confidence_level=args.confidence_level,
+                                  nonpositive=args.nonpositive, linear=args.linear)
+        if dl is not None:
+            kw.update(detection_limit=dl, censored_method=args.censored_method)
+        return df.logstats.summary(**kw)
+
+    res = _per_value(values, args.limits, run)
     cols = ["n", "n_missing", "n_nonpositive", "gmean", "gsd", "ci_low", "ci_high"]
+    if censored:
+        cols.append("n_censored")
     if args.linear:
         cols += ["median", "mean", "sd"]
+    if args.arithmetic_mean is not None:
+        def run_mean(columns: Any, dl: Any) -> Any:
+            return df.logstats.lognormal_mean(by=_by(keys), columns=columns, method=args.arithmetic_mean,
+                                              confidence_level=args.confidence_level,
+                                              nonpositive=args.nonpositive, random_state=args.seed,
+                                              **_dl_kw(dl))
+
+        am = _per_value(values, args.limits, run_mean)
+        am = am[["estimate", "ci_low", "ci_high"]].rename(
+            columns={"estimate": "arith_mean", "ci_low": "arith_ci_low", "ci_high": "arith_ci_high"})
+        res = res.join(am)
+        cols += ["arith_mean", "arith_ci_low", "arith_ci_high"]
     _emit(res, args, columns=cols if not args.all_columns else None)
+    if censored and args.output is None:
+        how = {"mle": "the censored log-normal maximum likelihood fit",
+               "ros": "robust regression on order statistics (Helsel's plotting positions)",
+               "km": "the Kaplan-Meier estimate on the flipped logs"}[args.censored_method]
+        _note(args, f"non-detects: gmean, gsd and the interval come from {how}; no value is substituted")
+    if args.arithmetic_mean is not None and args.output is None:
+        _note(args, f"arith_mean: the arithmetic mean a log-normal fit implies, interval by the "
+                    f"{args.arithmetic_mean!r} method")
     _save_plots(args, values, lambda v: _plot().hist(df, v, by=_plot_key(df, keys), layout="panels",
                                                       nonpositive=args.nonpositive, units=args.units,
-                                                      normal=True))
+                                                      normal=True, detection_limit=args.limits.get(v)))
     return EXIT_OK
 
 
@@ -609,7 +847,7 @@ def _empty_reasons(res: pd.DataFrame, args: argparse.Namespace, ref: Any) -> tup
     """Why rows of a comparison hold no ratio, one line per such row; and whether all rows are so."""
     ratio = res["ratio"] if "ratio" in res.columns else pd.Series(dtype=float)
     bad = ratio.isna().to_numpy()
-    unit = str(args.replicate) if args.replicate is not None else "value"
+    unit = str(_unit_of(args.replicate)) if args.replicate is not None else "value"
     lines = []
     for label, row in res[bad].iterrows():
         n, n_ref = int(row.get("n", 0) or 0), int(row.get("n_reference", 0) or 0)
@@ -641,7 +879,8 @@ def _cmd_compare(args: argparse.Namespace) -> int:
     except DataError as exc:
         raise DataError(f"{args.table}: {exc}") from None
     df = in_data_order(df, keys)
-    kw: dict[str, Any] = dict(columns=_one_or_many(values), replicate=args.replicate, paired=args.paired,
+    unit = _unit_of(args.replicate)
+    kw: dict[str, Any] = dict(replicate=args.replicate, paired=args.paired,
                               equal_var=args.equal_var, confidence_level=args.confidence_level,
                               adjust=None if args.adjust == "none" else args.adjust,
                               nonpositive=args.nonpositive)
@@ -651,10 +890,9 @@ def _cmd_compare(args: argparse.Namespace) -> int:
     if eq is not None:
         kw["equivalence"] = eq
     args.progress("fold changes")
-    res = df.logstats.fold_change(by, ref, **kw)
-    if not args.keep_reference:
-        idx = res.index
-        res = res[idx.get_level_values(by) != ref] if by in (idx.names or []) else res
+    res = _per_value(values, args.limits,
+                     lambda columns, dl: df.logstats.fold_change(by, ref, columns=columns, **kw,
+                                                                 **_dl_kw(dl)))
     reasons, nothing = _empty_reasons(res, args, ref)
     for line in reasons:
         print(f"logstats: {'error' if nothing else 'warning'}: {args.table}: no fold change for {line}",
@@ -664,8 +902,13 @@ def _cmd_compare(args: argparse.Namespace) -> int:
               "all empty)", file=sys.stderr)
         return EXIT_DATA
     cols = ["ratio", "ci_low", "ci_high", "p_value", "p_adjusted", "n", "n_reference"]
+    if isinstance(args.replicate, list):
+        for level in args.replicate[1:]:
+            cols += [f"n_{level}", f"n_{level}_reference"]
     if args.replicate is not None:
         cols += ["n_cells", "n_cells_reference"]
+    if _censoring(args.limits, values):
+        cols += ["n_censored", "n_censored_reference"]
     if eq is not None:
         cols += ["equivalence_p", "equivalent"]
     names = {c: count_label(c, unit_name=args.unit_name) for c in res.columns}
@@ -674,10 +917,15 @@ def _cmd_compare(args: argparse.Namespace) -> int:
     _emit(res, args, columns=cols if not args.all_columns else None)
     if args.replicate is not None and args.output is None:
         rows = names.get("n_cells", "n_values")
-        _note(args, f"n and n_reference count {args.replicate} (the units); {rows} and {rows}_reference "
-                    "count rows")
+        nested = (f"; values are averaged on the log scale up {' > '.join(map(str, args.replicate))}"
+                  if isinstance(args.replicate, list) else "")
+        _note(args, f"n and n_reference count {unit} (the units); {rows} and {rows}_reference "
+                    f"count rows{nested}")
+    if _censoring(args.limits, values) and args.output is None:
+        _note(args, "non-detects: censored regression on the logs with a common spread (Wald interval, "
+                    "likelihood-ratio p-value); no value is substituted")
     _save_plots(args, values, lambda v: _plot().groups(df, v, by=_plot_key(df, keys),
-                                                        replicate=args.replicate,
+                                                        replicate=unit,
                                                         nonpositive=args.nonpositive, units=args.units,
                                                         confidence_level=args.confidence_level))
     return EXIT_OK
@@ -686,38 +934,242 @@ def _cmd_compare(args: argparse.Namespace) -> int:
 def _cmd_fit(args: argparse.Namespace) -> int:
     df, values, keys = _load(args)
     df = in_data_order(df, keys)
-    dl = _detection_limit(args.detection_limit, df, args.table)
-    kw: dict[str, Any] = {"columns": _one_or_many(values)}
-    if dl is not None:
-        kw["detection_limit"] = dl
-    else:
-        kw["nonpositive"] = args.nonpositive
     args.progress("log-normal fits")
-    res = df.logstats.fit(by=_by(keys), **kw)
-    if isinstance(res, pd.Series):
-        res = res.to_frame().T
-        res.index = pd.Index(values, name="variable")
-    _emit(res, args, columns=["mu", "sigma", "n", "n_censored", "loglik", "converged"]
+
+    def run(columns: Any, dl: Any) -> Any:
+        kw: dict[str, Any] = {"columns": columns}
+        if dl is not None:
+            kw["detection_limit"] = dl
+        else:
+            kw["nonpositive"] = args.nonpositive
+        return df.logstats.fit(by=_by(keys), **kw)
+
+    res = _per_value(values, args.limits, run)
+    _emit(res, args, columns=["mu", "sigma", "gmean", "gsd", "n", "n_censored", "loglik", "converged"]
           if not args.all_columns else None)
     _save_plots(args, values, lambda v: _plot().hist(df, v, by=_plot_key(df, keys), layout="panels",
-                                                      detection_limit=dl, nonpositive=args.nonpositive,
-                                                      units=args.units))
+                                                      detection_limit=args.limits.get(v),
+                                                      nonpositive=args.nonpositive, units=args.units))
     return EXIT_OK
+
+
+def _verdict_rule(margin: float) -> str:
+    return (f"preferred: 'log' when delta_aic = aic_normal - aic_lognormal >= {margin:g}, 'linear' when it "
+            f"is <= -{margin:g}, else 'undecided' (--margin). boxcox_lambda near 0 supports logs, near 1 "
+            "the linear scale; its interval is the profile-likelihood one.")
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
     df, values, keys = _load(args)
     df = in_data_order(df, keys)
+    if args.pooled and not keys:
+        raise UsageError("--pooled needs --by (one verdict across the groups of --by)")
     args.progress("scale check")
-    res = df.logstats.scale_check(by=_by(keys), columns=_one_or_many(values), nonpositive=args.nonpositive)
+
+    def run(columns: Any, dl: Any) -> Any:
+        return df.logstats.scale_check(by=_by(keys), columns=columns, nonpositive=args.nonpositive,
+                                       margin=args.margin, confidence_level=args.confidence_level,
+                                       pooled=args.pooled, **_dl_kw(dl))
+
+    res = _per_value(values, args.limits, run)
+    if args.pooled:
+        cols = ["n_groups", "n", "aic_normal", "aic_lognormal", "delta_aic", "preferred", "boxcox_lambda",
+                "boxcox_ci_low", "boxcox_ci_high", "spread_slope", "spread_slope_ci_low",
+                "spread_slope_ci_high", "implied_power", "n_censored"]
+        heading = f"one verdict across the groups of {' x '.join(map(str, keys))}:"
+    else:
+        cols = ["aic_normal", "aic_lognormal", "delta_aic", "preferred", "boxcox_lambda", "boxcox_ci_low",
+                "boxcox_ci_high", "normality_test", "normality_p_linear", "normality_p_log", "mean_ratio",
+                "expected_ratio", "n_censored"]
+        heading = None
+    _emit(res, args, columns=cols if not args.all_columns else None,
+          heading=heading if args.output is None else None)
+    if args.output is None:
+        rule = _verdict_rule(args.margin)
+        if args.pooled:
+            rule += (" spread_slope: slope of log SD on log mean over the groups (1: spread proportional "
+                     "to level, multiplicative; 0: additive; 1/2: counting-like), t interval on "
+                     "n_groups - 2 df.")
+            notes = res["note"].dropna() if "note" in res.columns else pd.Series(dtype=object)
+            for text in notes.unique():
+                if text:
+                    rule += f" Note: {text}"
+        _footer(args, rule)
+    _save_plots(args, values, lambda v: _plot().qq(df, v, by=_plot_key(df, keys),
+                                                    nonpositive=args.nonpositive, units=args.units))
+    if args.scale_plot is not None:
+        saved, args.plot = args.plot, args.scale_plot
+        try:
+            _save_plots(args, values, lambda v: _plot().scale(df, v, by=_plot_key(df, keys),
+                                                               pooled=args.pooled,
+                                                               nonpositive=args.nonpositive,
+                                                               confidence_level=args.confidence_level,
+                                                               units=args.units,
+                                                               detection_limit=args.limits.get(v)))
+        finally:
+            args.plot = saved
+    return EXIT_OK
+
+
+def _parse_limit(text: str | None, df: pd.DataFrame, path: str) -> Any:
+    if text is None:
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        _check_column(df, path, text, "--limit")
+        _check_numeric(df, path, text, "--limit")
+        return {str(c): c for c in df.columns}[text]
+    if not value > 0:
+        raise DataError(f"{path}: --limit {text} must be a positive number (in the data's units) or a column")
+    return value
+
+
+def _cmd_tail(args: argparse.Namespace) -> int:
+    df, values, keys = _load(args)
+    df = in_data_order(df, keys)
+    limit = _parse_limit(args.limit, df, args.table)
+    qs = args.q or [0.95]
+    for q in qs:
+        if not 0.0 < q < 1.0:
+            raise UsageError(f"--q {q:g} must lie strictly between 0 and 1, e.g. 0.95")
+    if not 0.0 < args.coverage < 1.0:
+        raise UsageError(f"--coverage {args.coverage:g} must lie strictly between 0 and 1, e.g. 0.95")
+    acc = df.logstats
+    by = _by(keys)
+    common = dict(by=by, confidence_level=args.confidence_level, nonpositive=args.nonpositive)
+    args.progress("percentiles")
+    quant = _per_value(values, args.limits, lambda c, dl: acc.quantile(columns=c, q=qs if len(qs) > 1
+                                                                        else qs[0], **common, **_dl_kw(dl)))
+    args.progress("tolerance limits")
+    tol = _per_value(values, args.limits, lambda c, dl: acc.tolerance_limit(
+        columns=c, coverage=args.coverage, side=args.side, **common, **_dl_kw(dl)))
+    exc = None
+    if limit is not None:
+        args.progress("exceedance")
+        exc = _per_value(values, args.limits, lambda c, dl: acc.exceedance(columns=c, limit=limit, **common,
+                                                                            **_dl_kw(dl)))
+    censored = _censoring(args.limits, values)
+    cens = ["n_censored"] if censored else []
+    pct = f"{100 * args.confidence_level:g} %"
+    if args.output is not None:  # one wide table: a row per group
+        wide = quant.copy()
+        if "q" in (wide.index.names or []):
+            wide = wide["estimate ci_low ci_high".split()].unstack("q")
+            wide.columns = [f"q{q:g}_{k}" for k, q in wide.columns]
+        else:
+            wide = wide[["estimate", "ci_low", "ci_high"]].add_prefix(f"q{qs[0]:g}_")
+        wide = wide.join(tol[["n", *cens, "tolerance_low", "tolerance_high"]])
+        if exc is not None:
+            wide = wide.join(exc[["limit", "fraction", "ci_low", "ci_high", "n_exceed"]].rename(
+                columns={"fraction": "exceed_fraction", "ci_low": "exceed_ci_low",
+                         "ci_high": "exceed_ci_high"}))
+        _emit(wide, args)
+    else:
+        _emit(quant, args,
+              columns=None if args.all_columns else ["estimate", "ci_low", "ci_high", "n", *cens],
+              heading=f"percentiles of the fitted log-normal, exp(mean + z_q sd) with the exact {pct} "
+                      "interval (non-central t):")
+        print()
+        side = {"upper": "upper", "lower": "lower", "both": "two-sided"}[args.side]
+        sides = {"upper": ["tolerance_high"], "lower": ["tolerance_low"],
+                 "both": ["tolerance_low", "tolerance_high"]}[args.side]
+        _emit(tol, args, columns=None if args.all_columns else [*sides, "n", *cens],
+              heading=f"{side} tolerance limits covering {100 * args.coverage:g} % of the population with "
+                      f"{pct} confidence:")
+        if exc is not None:
+            print()
+            _emit(exc, args, columns=None if args.all_columns else ["limit", "fraction", "ci_low", "ci_high",
+                                                                      "n_exceed", "n", *cens],
+                  heading=f"share of the population above the limit, with its exact {pct} interval; "
+                          "n_exceed counts observed values above it:")
+        if censored:
+            print()
+            print(textwrap.fill("Non-detects: the estimates come from the censored log-normal maximum "
+                                "likelihood fit; their intervals are then approximate.", min(_width(), 100)))
+    _footer(args, _TAIL_CAUTION)
+    _save_plots(args, values, lambda v: _plot().hist(df, v, by=_plot_key(df, keys), layout="panels",
+                                                      nonpositive=args.nonpositive, units=args.units,
+                                                      detection_limit=args.limits.get(v),
+                                                      limit=limit))
+    return EXIT_OK
+
+
+def _cmd_components(args: argparse.Namespace) -> int:
+    df, values, keys = _load(args)
+    df = in_data_order(df, keys)
+    if not args.nested:
+        raise UsageError("--nested needs at least one column (the nesting levels, outermost first)")
+    if _censoring(args.limits, values):
+        raise UsageError("variance components take no non-detects yet (no censored form); pass a column "
+                         "of measured values")
+    args.progress("variance components")
+    res = df.logstats.variance_components(by=_by(keys), columns=_one_or_many(values), nested=args.nested,
+                                          confidence_level=args.confidence_level,
+                                          nonpositive=args.nonpositive)
     if isinstance(res, pd.Series):
         res = res.to_frame().T
         res.index = pd.Index(values, name="variable")
-    _emit(res, args, columns=["aic_normal", "aic_lognormal", "delta_aic", "preferred", "normality_test",
-                              "normality_p_linear", "normality_p_log", "mean_ratio", "expected_ratio"]
-          if not args.all_columns else None)
-    _save_plots(args, values, lambda v: _plot().qq(df, v, by=_plot_key(df, keys),
-                                                    nonpositive=args.nonpositive, units=args.units))
+    levels = [*map(str, args.nested), "within"]
+    cols = ["n"] + [f"n_{lv}" for lv in levels[:-1]]
+    for lv in levels:
+        cols += [f"var_{lv}", f"gsd_{lv}", f"frac_{lv}"]
+    cols += ["design_effect", "n_effective"]
+    _emit(res, args, columns=cols if not args.all_columns else None)
+    if args.output is None:
+        inner = " within ".join(reversed(levels[:-1]))
+        text = (f"Variance of the natural logs split by level ({inner}; 'within' is the spread inside the "
+                "innermost unit). gsd_L = exp(sqrt(var_L)) is that level's spread factor, frac_L its "
+                "share of "
+                "the total; n_effective = n / design_effect independent values. ANOVA (method of moments) "
+                "estimators for unbalanced nesting; --all-columns shows the intervals.")
+        trunc = int(pd.to_numeric(res.get("n_truncated", pd.Series(dtype=float)), errors="coerce").fillna(0)
+                    .sum())
+        if trunc:
+            text += (f" {trunc} negative estimate(s) were set to 0 (counted in n_truncated): that level "
+                     "shows no spread beyond what the level below explains.")
+        _footer(args, text)
+    return EXIT_OK
+
+
+def _int_list(text: str | None, option: str) -> list[int] | None:
+    if text is None:
+        return None
+    try:
+        return [int(x) for x in text.replace(" ", "").split(",") if x]
+    except ValueError as exc:
+        raise UsageError(f"{option} {text!r}: give whole numbers separated by commas, e.g. 3,4,6,8") from exc
+
+
+def _cmd_plan(args: argparse.Namespace) -> int:
+    res = logstats.plan(args.ratio, var_between=args.var_between, var_within=args.var_within,
+                        alpha=args.alpha, power=args.power,
+                        replicates=_int_list(args.replicates, "--replicates"),
+                        per_replicate=_int_list(args.per_replicate, "--per-replicate"))
+    best = res.attrs.get("smallest")
+    if args.output is not None:
+        _emit(res.set_index(["replicates", "per_replicate"]), args)
+    else:
+        grid = res.pivot(index="replicates", columns="per_replicate", values="power")
+        grid.columns = [f"m={c}" for c in grid.columns]
+        limit = res.groupby("replicates")["power_limit"].first()
+        grid["m=inf"] = limit
+        print(f"power to detect a {args.ratio:g}-fold change (two-sided alpha {args.alpha:g}) with k "
+              "replicates per condition (rows) of m values each (columns):")
+        print(format_table(grid, digits=args.digits, ascii=_wants_ascii(args), width=_width()))
+        print()
+        if best:
+            print(f"smallest design reaching power {args.power:g}: {int(best['replicates'])} replicates of "
+                  f"{int(best['per_replicate'])} values per condition (power {best['power']:.3f}; "
+                  f"{int(best['values_per_condition'])} values per condition).")
+        else:
+            print(f"no design in the grid reaches power {args.power:g}; add replicates (--replicates): more "
+                  "values per replicate stop helping once the between-replicate variance dominates (m=inf "
+                  "is that ceiling).")
+        print(textwrap.fill(
+            "Two-sided two-sample t test on replicate means of the natural logs; the variance of a "
+            "replicate mean is var_between + var_within / m (take both from 'logstats components'). "
+            "Assumed variances are estimates: plan with some margin.", min(_width(), 100)))
     return EXIT_OK
 
 
@@ -733,14 +1185,20 @@ def _cmd_report(args: argparse.Namespace) -> int:
             raise DataError(f"{args.table}: {exc}") from None
     if args.replicate is not None and not keys:
         raise UsageError("--replicate needs --by")
-    dl = _detection_limit(args.detection_limit, df, args.table)
+    specs = [args.limits.get(v) for v in values]
+    if any(repr(x) != repr(specs[0]) for x in specs):
+        raise DataError(f"{args.table}: the value columns have different detection limits; make one report "
+                        "per --value")
+    limit = _parse_limit(args.limit, df, args.table)
     from logstats.report import build_report
 
     build_report(df, value=_one_or_many(values), by=_by(keys), replicate=args.replicate, reference=ref,
-                 path=args.output, detection_limit=dl, nonpositive=args.nonpositive,
+                 path=args.output, detection_limit=specs[0], nonpositive=args.nonpositive,
                  confidence_level=args.confidence_level, units=args.units, title=args.title,
                  source=args.table, adjust=None if args.adjust == "none" else args.adjust,
-                 unit_name=args.unit_name, command=args.command_line, progress=args.progress)
+                 unit_name=args.unit_name, command=args.command_line, progress=args.progress,
+                 limit=limit, nested=args.nested or None, margin=args.margin,
+                 censored_method=args.censored_method, coverage=args.coverage)
     _note(args, f"wrote {args.output}")
     return EXIT_OK
 
@@ -807,9 +1265,13 @@ _EXAMPLES = {
     "report": ("logstats report cells.csv --value reporter --by treatment --replicate well "
                "--reference vehicle --nonpositive drop -o report.html"),
     "demo": "logstats demo --output logstats-demo --seed 7",
+    "tail": "logstats tail river.csv --value nitrate --by site --limit 50 --q 0.95 --q 0.99",
+    "components": "logstats components cells.csv --value reporter --by treatment --nested day --nested well",
+    "plan": "logstats plan --ratio 1.5 --var-between 0.05 --var-within 0.25",
 }
 _LAB_EXAMPLE = {
     "summary": 'logstats summary export.csv --value "conc (mg/L)" --by site --by month',
+    "fit": "logstats fit lab.csv --value conc --by site --nd-limit 0.2   (conc written 1.4, <0.5, ND)",
     "report": "logstats report plate.xlsx --sheet 2 --value signal --by arm --by day -o report.html",
 }
 
@@ -856,7 +1318,37 @@ def _add_input(p: argparse.ArgumentParser, *, by_required: bool = False, by_help
                    help="zeros and negatives: refuse them (default), drop them (counted in "
                         "n_nonpositive) or make the group's result NaN")
     p.add_argument("--units", default=None, help="units of the values, for figure axes (e.g. 'mg/L')")
+    p.add_argument("--nd-limit", metavar="NUMBER|COLUMN", default=None,
+                   help="detection limit of non-detects written as words ('ND', 'n.d.', '<LOD', '<LOQ', "
+                        "'BDL'); entries such as '<0.5' carry their own limit and need no option")
     _add_common(p)
+
+
+def _add_detection_limit(p: argparse.ArgumentParser, what: str) -> None:
+    p.add_argument("--detection-limit", metavar="NUMBER|COLUMN", default=None,
+                   help="detection limit: a number or a column holding each row's limit; values at or "
+                        f"below it are non-detects ({what}). A value column written '<0.5', 'ND' … is "
+                        "read as censored without this option")
+
+
+def _positive(text: str) -> float:
+    try:
+        v = float(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from exc
+    if not (v > 0 and v < float("inf")):
+        raise argparse.ArgumentTypeError(f"{text} must be a positive number")
+    return v
+
+
+def _nonnegative(text: str) -> float:
+    try:
+        v = float(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from exc
+    if not (v >= 0 and v < float("inf")):
+        raise argparse.ArgumentTypeError(f"{text} must be a number >= 0")
+    return v
 
 
 def _add_output(p: argparse.ArgumentParser, *, plot_help: str) -> None:
@@ -902,6 +1394,15 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--confidence-level", type=_level, default=0.95,
                    help="confidence level of the interval (default 0.95)")
     p.add_argument("--linear", action="store_true", help="add the linear-scale median, mean and SD")
+    _add_detection_limit(p, "the censored log-normal fit, not substitution")
+    p.add_argument("--censored-method", choices=("mle", "ros", "km"), default="mle",
+                   help="with non-detects: maximum likelihood (default), robust regression on order "
+                        "statistics, or Kaplan-Meier")
+    p.add_argument("--arithmetic-mean", choices=("cox", "modified_cox", "land", "gci", "bootstrap"),
+                   default=None, help="add the arithmetic mean implied by the log-normal fit with its "
+                                      "interval by this method (land: exact)")
+    p.add_argument("--seed", type=int, default=None,
+                   help="random seed of the Monte Carlo methods of --arithmetic-mean (gci, bootstrap)")
     _add_output(p, plot_help="log-binned histograms with the fitted densities")
     p.set_defaults(func=_cmd_summary, subparser=p)
 
@@ -916,8 +1417,9 @@ def build_parser() -> argparse.ArgumentParser:
                by_help="the column whose levels are compared; a second --by compares within its levels")
     p.add_argument("--reference", required=True, metavar="LEVEL",
                    help="the level of the first --by compared against (e.g. vehicle)")
-    p.add_argument("--replicate", metavar="COLUMN", default=None,
-                   help="replicate column: its geometric means are the units")
+    p.add_argument("--replicate", metavar="COLUMN", action="append", default=None,
+                   help="replicate column: its geometric means are the units; repeat for nested "
+                        "replicates, outermost first (--replicate day --replicate well)")
     p.add_argument("--paired", action="store_true",
                    help="pair replicates sharing a label with the reference's (needs --replicate)")
     p.add_argument("--equal-var", action="store_true", help="Student's pooled t instead of Welch's")
@@ -927,7 +1429,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="equivalence limits on the ratio, e.g. 0.8,1.25 (two one-sided tests)")
     p.add_argument("--confidence-level", type=_level, default=0.95,
                    help="confidence level of the intervals (default 0.95)")
-    p.add_argument("--keep-reference", action="store_true", help="keep the reference's own row")
+    _add_detection_limit(p, "censored regression on the logs with a common spread")
     _add_unit_name(p)
     _add_output(p, plot_help="every value with replicate means and geometric mean ×/÷ CI per group")
     p.set_defaults(func=_cmd_compare, subparser=p)
@@ -938,8 +1440,7 @@ def build_parser() -> argparse.ArgumentParser:
                            "--detection-limit values at or below it are non-detects."),
                        epilog=_epilog("fit"), formatter_class=fmt)
     _add_input(p)
-    p.add_argument("--detection-limit", metavar="NUMBER|COLUMN", default=None,
-                   help="detection limit: a number or the name of a column holding each row's limit")
+    _add_detection_limit(p, "left-censored fit")
     _add_output(p, plot_help="histograms with the (censored) fit")
     p.set_defaults(func=_cmd_fit, subparser=p)
 
@@ -949,6 +1450,17 @@ def build_parser() -> argparse.ArgumentParser:
                                    "arithmetic/geometric mean ratio with the one log-normality predicts."),
                        epilog=_epilog("check"), formatter_class=fmt)
     _add_input(p)
+    p.add_argument("--margin", type=_nonnegative, default=2.0,
+                   help="a scale is preferred only when its AIC is lower by at least this much, else "
+                        "'undecided' (default 2)")
+    p.add_argument("--pooled", action="store_true",
+                   help="one verdict across the groups of --by (group means removed, one common Box-Cox "
+                        "power) and the mean-spread slope over the groups")
+    p.add_argument("--confidence-level", type=_level, default=0.95,
+                   help="level of the Box-Cox and slope intervals (default 0.95)")
+    _add_detection_limit(p, "censored likelihoods on both scales")
+    p.add_argument("--scale-plot", metavar="FILE", default=None,
+                   help="also draw the Box-Cox profile and the mean-spread plot to FILE (.png, .svg, .pdf)")
     _add_output(p, plot_help="normal probability plots of the logs and the raw values")
     p.set_defaults(func=_cmd_check, subparser=p)
 
@@ -958,12 +1470,25 @@ def build_parser() -> argparse.ArgumentParser:
                                    "in one HTML file with the figures embedded (no network)."),
                        epilog=_epilog("report"), formatter_class=fmt)
     _add_input(p, by_help="group column; repeat for several keys (the first is the one compared)")
-    p.add_argument("--replicate", metavar="COLUMN", default=None,
-                   help="replicate column (well, animal, day): comparisons use its means as the units")
+    p.add_argument("--replicate", metavar="COLUMN", action="append", default=None,
+                   help="replicate column (well, animal, day): comparisons use its means as the units; "
+                        "repeat for nested replicates, outermost first (adds the variance components)")
+    p.add_argument("--nested", metavar="COLUMN", action="append", default=None,
+                   help="nesting level for the variance-components section, outermost first; repeat")
+    p.add_argument("--limit", metavar="NUMBER|COLUMN", default=None,
+                   help="a limit in the data's units: adds the upper-tail section (percentiles, tolerance "
+                        "limits, exceedance) and draws the limit on the figures")
+    p.add_argument("--coverage", type=_level, default=0.95,
+                   help="population share of the tolerance limits (default 0.95)")
+    p.add_argument("--margin", type=_nonnegative, default=2.0,
+                   help="AIC margin of the scale verdict (default 2)")
+    p.add_argument("--censored-method", choices=("mle", "ros", "km"), default="mle",
+                   help="with non-detects: how the summary is estimated (default mle)")
     p.add_argument("--reference", metavar="LEVEL", default=None,
                    help="level of the first --by the others are compared with (no comparisons without)")
     p.add_argument("--detection-limit", metavar="NUMBER|COLUMN", default=None,
-                   help="detection limit: adds the censored fit and the count of non-detects")
+                   help="detection limit: every table then treats values at or below it as censored "
+                        "(and counts them)")
     p.add_argument("--confidence-level", type=_level, default=0.95,
                    help="confidence level of the intervals (default 0.95)")
     p.add_argument("--adjust", choices=("holm", "bh", "none"), default="holm",
@@ -973,6 +1498,68 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--output", "-o", metavar="FILE.html", default="report.html",
                    help="where to write the report (default report.html)")
     p.set_defaults(func=_cmd_report, subparser=p)
+
+    p = sub.add_parser("tail", help="upper tail: percentiles, tolerance limits and exceedance of a limit",
+                       description=_wrap(
+                           "Percentiles of the fitted log-normal with exact intervals (non-central t), "
+                           "tolerance limits (a bound covering --coverage of the population with "
+                           "--confidence-level confidence) and, with --limit, the estimated share of the "
+                           "population above the limit with its exact interval, per group. " + _TAIL_CAUTION),
+                       epilog=_epilog("tail"), formatter_class=fmt)
+    _add_input(p)
+    p.add_argument("--limit", metavar="NUMBER|COLUMN", default=None,
+                   help="limit in the data's units (or a column with each group's limit): exceedance")
+    p.add_argument("--q", type=float, action="append", default=None, metavar="P",
+                   help="percentile as a probability, e.g. 0.95; repeat for several (default 0.95)")
+    p.add_argument("--coverage", type=float, default=0.95,
+                   help="population share covered by the tolerance limits (default 0.95)")
+    p.add_argument("--side", choices=("upper", "lower", "both"), default="upper",
+                   help="tolerance limit side (default upper)")
+    p.add_argument("--confidence-level", type=_level, default=0.95,
+                   help="confidence level of every interval (default 0.95)")
+    _add_detection_limit(p, "censored maximum likelihood; intervals then approximate")
+    _add_output(p, plot_help="histograms with the limit marked")
+    p.set_defaults(func=_cmd_tail, subparser=p)
+
+    p = sub.add_parser("components", help="variance components of a nested design (day > well > cell)",
+                       description=_wrap(
+                           "Splits the variance of the natural logs into one component per nesting level "
+                           "(--nested, outermost first; an inner label is read within its outer level) "
+                           "and the spread within the innermost unit, with GSD form, shares, design effect "
+                           "and the effective number of independent values."),
+                       epilog=_epilog("components"), formatter_class=fmt)
+    _add_input(p)
+    p.add_argument("--nested", metavar="COLUMN", action="append", default=None, required=True,
+                   help="nesting level, outermost first; repeat (--nested day --nested well)")
+    p.add_argument("--confidence-level", type=_level, default=0.95,
+                   help="confidence level of the component intervals (default 0.95)")
+    _add_output(p, plot_help="nothing yet (no figure for components)")
+    p.set_defaults(func=_cmd_components, subparser=p)
+
+    p = sub.add_parser("plan", help="how many replicates and values per replicate to detect a fold change",
+                       description=_wrap(
+                           "Power of a two-sided two-sample t test on replicate means of the logs over a "
+                           "grid of designs (replicates per condition x values per replicate), and the "
+                           "smallest design reaching --power. The variances are those of the natural "
+                           "logs, e.g. from 'logstats components'."),
+                       epilog=_epilog("plan"), formatter_class=fmt)
+    p.add_argument("--ratio", type=_positive, required=True, help="fold change to detect, e.g. 1.5")
+    p.add_argument("--var-between", type=_nonnegative, required=True,
+                   help="variance of the logs between replicates")
+    p.add_argument("--var-within", type=_nonnegative, required=True,
+                   help="variance of the logs within a replicate")
+    p.add_argument("--alpha", type=_level, default=0.05, help="two-sided significance level (default 0.05)")
+    p.add_argument("--power", type=_level, default=0.8, help="target power (default 0.8)")
+    p.add_argument("--replicates", metavar="K,K,...", default=None,
+                   help="replicates per condition to try (default 2 to 20)")
+    p.add_argument("--per-replicate", metavar="M,M,...", default=None,
+                   help="values per replicate to try (default 1,2,5,10,20,50,100,200,500)")
+    p.add_argument("--output", "-o", metavar="FILE", default=None,
+                   help="write the long table to FILE (.csv, .tsv or .parquet)")
+    p.add_argument("--digits", type=_digits, default=3, help="significant digits shown (default 3)")
+    p.add_argument("--ascii", action="store_true", help="plain ASCII output")
+    _add_common(p)
+    p.set_defaults(func=_cmd_plan, subparser=p)
 
     p = sub.add_parser("demo", help="run the whole analysis on an invented example data set",
                        description=_wrap(
@@ -992,9 +1579,10 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _usage_checks(args: argparse.Namespace) -> None:
-    if args.command in ("summary", "compare", "fit", "check"):
+    if args.command in ("summary", "compare", "fit", "check", "tail", "components", "plan"):
         _check_suffix(args.output, _TABLE_OUT, "--output")
-        _check_suffix(args.plot, _PLOT_OUT, "--plot")
+        _check_suffix(getattr(args, "plot", None), _PLOT_OUT, "--plot")
+        _check_suffix(getattr(args, "scale_plot", None), _PLOT_OUT, "--scale-plot")
     if args.command == "report":
         _check_suffix(args.output, (".html", ".htm"), "--output")
     if args.command == "compare" and args.paired and args.replicate is None:

@@ -38,7 +38,9 @@ from scipy import stats
 import logstats
 from logstats.format import data_order
 
-__all__ = ["OKABE_ITO", "groups", "hist", "plot_groups", "plot_hist", "plot_qq", "qq", "readable_log_axis"]
+__all__ = ["OKABE_ITO", "boxcox_profile", "groups", "hist", "plot_groups", "plot_hist", "plot_qq",
+           "plot_scale",
+           "qq", "readable_log_axis", "scale"]
 
 #: Okabe & Ito (2008) colour-blind-safe palette, the pale yellow moved towards the end (blue, orange,
 #: bluish green, vermillion, reddish purple, sky blue, yellow, black).
@@ -278,6 +280,31 @@ def _linear(data: _Data, nonpositive: str) -> pd.DataFrame:
     return _by_group(res, data)
 
 
+_LIMIT_COLOUR = "#D55E00"  # vermillion of Okabe & Ito (2008): the limit stands out from the groups
+
+
+def _limit_values(obj: Any, data: _Data, limit: Any) -> np.ndarray | None:
+    """Per-row limits (float) aligned with ``data.frame``, from a number or a column name; None without."""
+    if limit is None:
+        return None
+    if isinstance(limit, (int, float, np.integer, np.floating)) and not isinstance(limit, bool):
+        lim = float(limit)
+        if not (lim > 0 and np.isfinite(lim)):
+            raise ValueError(f"limit={limit!r} must be a positive, finite number in the data's units")
+        return np.full(len(data.frame), lim)
+    if isinstance(obj, pd.DataFrame) and limit in obj.columns:
+        vals = pd.to_numeric(obj[limit], errors="coerce").to_numpy(dtype=np.float64)
+        return vals
+    raise KeyError(f"limit={limit!r} is not a number or a column of the data")
+
+
+def _group_limits(limits: np.ndarray, mask: np.ndarray) -> list[float]:
+    """The distinct positive limits of one group (a few are drawn, not hundreds)."""
+    vals = limits[mask]
+    vals = np.unique(vals[np.isfinite(vals) & (vals > 0)])
+    return [float(v) for v in vals[:5]]
+
+
 def _finish_axes(ax: Any) -> None:
     ax.spines[["top", "right"]].set_visible(False)
 
@@ -444,6 +471,7 @@ def hist(
     units: str | None = None,
     title: str | None = None,
     ax: Any = None,
+    limit: Any = None,
 ) -> Any:
     """Histogram on log-spaced bins with the fitted log-normal density overlaid.
 
@@ -484,6 +512,9 @@ def hist(
         Units for the axis label (default: ``attrs["units"]`` of the data, if any).
     ax : matplotlib Axes or array of Axes, optional
         Draw here: one Axes overlays all groups; an array of Axes takes one group each.
+    limit : number or column name, optional
+        A limit in the data's units (regulatory, exposure or specification), drawn as a dashed
+        vertical line labelled "limit" (a column: each group's own limit).
 
     Returns
     -------
@@ -494,7 +525,6 @@ def hist(
     Limpert, E., Stahel, W. A. & Abbt, M. (2001). BioScience 51:341-352 (log-normal densities on a
     logarithmic axis).
     """
-    import matplotlib.pyplot as plt
 
     _check_policy(nonpositive)
     if layout not in ("overlay", "panels"):
@@ -502,6 +532,7 @@ def hist(
     if stat not in ("density", "count"):
         raise ValueError(f"stat={stat!r} is not 'density' or 'count'")
     data = _prepare(obj, value, by, None, dim, units)
+    limit_rows = _limit_values(obj, data, limit)
     if detection_limit is not None and isinstance(detection_limit, str):
         if not isinstance(obj, pd.DataFrame) or detection_limit not in obj.columns:
             raise KeyError(f"detection_limit={detection_limit!r} is not a column of the data")
@@ -520,49 +551,10 @@ def hist(
         detected &= ~(y <= ldl)
     if not detected.any():
         raise ValueError(f"column {data.value!r} has no positive values to plot")
-    lo, hi = float(np.min(y[detected])), float(np.max(y[detected]))
-    if hi <= lo:
-        lo, hi = lo - 0.5, hi + 0.5
-    if bins is None:
-        auto = np.histogram_bin_edges(y[detected], bins="auto")
-        bins = int(np.clip(len(auto) - 1, 10, 60))
-    edges = np.linspace(lo, hi, int(bins) + 1)
-    width = float(edges[1] - edges[0])
-    pad = 0.15 * (hi - lo)
-    glo, ghi = lo - pad, hi + pad
-    if detection_limit is not None:  # show the fitted curve below the limit too, to mu - 3 sigma
-        mus, sds = fits["mu"].to_numpy(dtype=float), fits["sigma"].to_numpy(dtype=float)
-        reach = mus - 3.0 * sds
-        if np.isfinite(reach).any():
-            glo = min(glo, float(np.nanmin(reach)))
-    grid = np.linspace(glo, ghi, 400)
-    xgrid = _exp(grid)
-
+    edges, width, grid, xgrid = _hist_bins(y[detected], bins, fits if detection_limit is not None else None)
     masks = data.group_masks()
     colors = _palette(palette)
-    if ax is None:
-        if layout == "panels" and len(masks) > 1:
-            ncols = int(np.ceil(np.sqrt(len(masks))))
-            nrows = int(np.ceil(len(masks) / ncols))
-            fig, axs = plt.subplots(nrows, ncols, sharex=True, sharey=True, squeeze=False,
-                                    figsize=(3.6 * ncols, 2.8 * nrows), layout="constrained")
-            axes = list(axs.ravel())
-            for extra in axes[len(masks):]:
-                extra.set_visible(False)
-        else:
-            fig, one = plt.subplots(figsize=(8.4, 4.2), layout="constrained")
-            axes = [one]
-            layout = "overlay"
-    elif isinstance(ax, (np.ndarray, list, tuple)):
-        axes = list(np.ravel(ax))
-        if len(axes) < len(masks):
-            raise ValueError(f"ax= holds {len(axes)} Axes for {len(masks)} groups")
-        for extra in axes[len(masks):]:
-            extra.set_visible(False)
-        layout = "panels"
-    else:
-        axes = [ax]
-        layout = "overlay"
+    axes, layout = _hist_axes(ax, layout, len(masks))
     from matplotlib.lines import Line2D
 
     for i, (g, mask) in enumerate(masks):
@@ -604,6 +596,12 @@ def hist(
             for k, lim in enumerate(limits[:5]):  # a few distinct limits are marked, not hundreds
                 a.axvline(float(lim), color="0.3", linestyle=":", linewidth=1.2, gid="detection-limit",
                           label="detection limit" if (k == 0 and (i == 0 or layout == "panels")) else None)
+    if limit_rows is not None:
+        for i, (_g, mask) in enumerate(masks):
+            a = axes[i] if layout == "panels" else axes[0]
+            for k, lim in enumerate(_group_limits(limit_rows, mask)):
+                a.axvline(lim, color=_LIMIT_COLOUR, linestyle="--", linewidth=1.5, gid="limit",
+                          label="limit" if (k == 0 and (i == 0 or layout == "panels")) else None)
     ylabel = "density per unit of ln x" if stat == "density" else "count per bin"
     used = axes[: len(masks)] if layout == "panels" else axes[:1]
     for a in used:
@@ -623,6 +621,8 @@ def hist(
     if layout == "panels":
         if detection_limit is not None:
             proxies.append(Line2D([], [], color="0.3", linestyle=":", label="detection limit"))
+        if limit_rows is not None:
+            proxies.append(Line2D([], [], color=_LIMIT_COLOUR, linestyle="--", label="limit"))
         fig.legend(handles=proxies, loc="outside lower center", ncols=len(proxies), fontsize="small",
                    frameon=False)
     else:
@@ -634,6 +634,56 @@ def hist(
     elif layout == "overlay":
         first.set_title(f"{data.value}: log-binned histogram with fitted densities", fontsize="medium")
     return np.array(used, dtype=object) if layout == "panels" else first
+
+
+def _hist_bins(y: np.ndarray, bins: int | None, censored_fits: pd.DataFrame | None
+               ) -> tuple[np.ndarray, float, np.ndarray, np.ndarray]:
+    """Bin edges on ln x, their width, and the grid (ln x and x) the fitted curves are drawn on.
+
+    With a censored fit the curve reaches below the detected values, to mu - 3 sigma."""
+    lo, hi = float(np.min(y)), float(np.max(y))
+    if hi <= lo:
+        lo, hi = lo - 0.5, hi + 0.5
+    if bins is None:
+        auto = np.histogram_bin_edges(y, bins="auto")
+        bins = int(np.clip(len(auto) - 1, 10, 60))
+    edges = np.linspace(lo, hi, int(bins) + 1)
+    width = float(edges[1] - edges[0])
+    pad = 0.15 * (hi - lo)
+    glo, ghi = lo - pad, hi + pad
+    if censored_fits is not None:
+        mus, sds = censored_fits["mu"].to_numpy(dtype=float), censored_fits["sigma"].to_numpy(dtype=float)
+        reach = mus - 3.0 * sds
+        if np.isfinite(reach).any():
+            glo = min(glo, float(np.nanmin(reach)))
+    grid = np.linspace(glo, ghi, 400)
+    return edges, width, grid, _exp(grid)
+
+
+def _hist_axes(ax: Any, layout: str, n_groups: int) -> tuple[list[Any], str]:
+    """The Axes to draw on and the layout that results (a grid of panels on one log scale, or one)."""
+    import matplotlib.pyplot as plt
+
+    if ax is None:
+        if layout == "panels" and n_groups > 1:
+            ncols = int(np.ceil(np.sqrt(n_groups)))
+            nrows = int(np.ceil(n_groups / ncols))
+            _fig, axs = plt.subplots(nrows, ncols, sharex=True, sharey=True, squeeze=False,
+                                     figsize=(3.6 * ncols, 2.8 * nrows), layout="constrained")
+            axes = list(axs.ravel())
+            for extra in axes[n_groups:]:
+                extra.set_visible(False)
+            return axes, "panels"
+        _fig, one = plt.subplots(figsize=(8.4, 4.2), layout="constrained")
+        return [one], "overlay"
+    if isinstance(ax, (np.ndarray, list, tuple)):
+        axes = list(np.ravel(ax))
+        if len(axes) < n_groups:
+            raise ValueError(f"ax= holds {len(axes)} Axes for {n_groups} groups")
+        for extra in axes[n_groups:]:
+            extra.set_visible(False)
+        return axes, "panels"
+    return [ax], "overlay"
 
 
 # --------------------------------------------------------------------------------------------------
@@ -657,6 +707,7 @@ def groups(
     units: str | None = None,
     title: str | None = None,
     ax: Any = None,
+    limit: Any = None,
 ) -> Any:
     """Every value as a faint jittered point on a log axis, with replicate and group geometric means.
 
@@ -688,6 +739,9 @@ def groups(
         Seed of the jitter and subset, so a figure is reproducible.
     palette, units, title, ax
         As in :func:`hist`.
+    limit : number or column name, optional
+        A limit in the data's units, drawn as a dashed horizontal line labelled "limit" (a column:
+        each group's own limit, across that group's column).
 
     Returns
     -------
@@ -706,6 +760,7 @@ def groups(
     if by is None:
         raise ValueError("groups() needs by= (the column or coordinate whose levels are compared)")
     data = _prepare(obj, value, by, replicate, dim, units)
+    limit_rows = _limit_values(obj, data, limit)
     df = data.frame
     policy = "drop" if nonpositive == "raise" else nonpositive
     y = _logs(data, nonpositive)  # raises for non-positive values under "raise"
@@ -783,6 +838,10 @@ def groups(
         if n_np:
             line += f"\n{n_np} ≤ 0 left out"
         ticklabels.append(line)
+        if limit_rows is not None:
+            for lim in _group_limits(limit_rows, mask):
+                ax.hlines(lim, i - 0.5, i + 0.5, colors=_LIMIT_COLOUR, linestyles="--", linewidth=1.5,
+                          zorder=3, gid="limit")
     ax.set_yscale("log")
     readable_log_axis(ax.yaxis)
     ax.set_xlim(-0.5 - _CLOUD_OFFSET, len(ticklabels) - 0.5 + _CLOUD_OFFSET / 2)
@@ -799,6 +858,8 @@ def groups(
     else:
         est_label = f"geometric mean ×/÷ {pct} CI"
     handles.append(Line2D([], [], color="black", linewidth=1.8, marker="D", markersize=5, label=est_label))
+    if limit_rows is not None:
+        handles.append(Line2D([], [], color=_LIMIT_COLOUR, linestyle="--", linewidth=1.5, label="limit"))
     ax.legend(handles=handles, fontsize="small", frameon=False, loc="upper left", bbox_to_anchor=(1.0, 1.0))
     ax.set_title(title if title is not None else f"{data.value} by {data.by}", fontsize="medium")
     _declutter_group_labels(ax, names, ticklabels)
@@ -914,6 +975,264 @@ def qq(
     return np.array(axes[:2], dtype=object) if raw else axes[0]
 
 
+# --------------------------------------------------------------------------------------------------
+# scale evidence
+
+
+def boxcox_profile(x: Any, lambdas: Any, *, groups: Any = None) -> np.ndarray:
+    r"""Box-Cox profile log-likelihood over a grid of powers, for drawing (not a statistic of a result).
+
+    Without ``groups`` it is :func:`scipy.stats.boxcox_llf` at each ``lambda``. With ``groups`` (one
+    code per value) every group keeps its own mean and all share one variance:
+    ``ℓ(λ) = (λ − 1)·Σ ln x − N/2·ln(SS_within(λ)/N)`` with ``SS_within`` the within-group sum of squares
+    of the transformed values (Box & Cox 1964, their one-way layout). The values are divided by their
+    geometric mean first, which shifts ℓ by a constant only (so maxima and intervals are unchanged).
+
+    Parameters
+    ----------
+    x : array_like of positive floats
+    lambdas : array_like
+        The powers.
+    groups : array_like of int, optional
+        Group codes ``0 .. k-1``, one per value.
+
+    Returns
+    -------
+    numpy.ndarray
+        ℓ at each power (same length as ``lambdas``).
+
+    References
+    ----------
+    Box, G. E. P. & Cox, D. R. (1964). An analysis of transformations. Journal of the Royal
+    Statistical Society B 26:211-252.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from scipy import stats
+    >>> x = np.array([1.0, 2.0, 4.0, 3.0, 9.0])
+    >>> bool(np.allclose(boxcox_profile(x, [0.0, 0.5]), [stats.boxcox_llf(0.0, x), stats.boxcox_llf(0.5, x)]))
+    True
+    """
+    from scipy import special
+
+    xs = np.asarray(x, dtype=np.float64)
+    lam = np.atleast_1d(np.asarray(lambdas, dtype=np.float64))
+    if groups is None:
+        return np.array([stats.boxcox_llf(float(v), xs) for v in lam])
+    codes = np.asarray(groups, dtype=np.intp)
+    n = xs.size
+    logs = np.log(xs)
+    shift = logs.mean()
+    scaled = np.exp(logs - shift)
+    k = int(codes.max()) + 1 if n else 0
+    counts = np.bincount(codes, minlength=k).astype(np.float64)
+    out = np.empty(lam.size)
+    for j, v in enumerate(lam):  # one pass per grid point, all groups together
+        z = special.boxcox(scaled, v)
+        sums = np.bincount(codes, weights=z, minlength=k)
+        means = np.divide(sums, counts, out=np.zeros(k), where=counts > 0)
+        ss = float(np.sum((z - means[codes]) ** 2))
+        with np.errstate(divide="ignore"):
+            out[j] = (v - 1.0) * float(np.sum(logs - shift)) - 0.5 * n * np.log(ss / n)
+    return out
+
+
+def scale(
+    obj: Any,
+    value: Hashable | None = None,
+    *,
+    by: Any = None,
+    dim: Any = None,
+    pooled: bool = False,
+    confidence_level: float = 0.95,
+    margin: float = 2.0,
+    detection_limit: Any = None,
+    nonpositive: str = "raise",
+    lambdas: Any = None,
+    palette: str | Sequence[str] | None = None,
+    units: str | None = None,
+    title: str | None = None,
+    ax: Any = None,
+) -> Any:
+    """Scale evidence in two panels: the Box-Cox profile, and the mean-spread law across groups.
+
+    Left (linear axes): the profile log-likelihood of the Box-Cox power λ, relative to its maximum,
+    per group (or one curve for all groups with ``pooled=True``: group means removed, one common
+    power), with λ = 0 (logs) and λ = 1 (linear scale) marked, the maximum-likelihood λ of
+    ``.logstats.scale_check()`` as a dot and its profile-likelihood interval shaded (the curve crosses
+    the dotted cut-off at the interval's ends). Right (log-log axes): each group's SD against its mean
+    (linear scale, SD with ``ddof=1``) with the least-squares line of log SD on log mean, whose slope
+    is ``spread_slope`` of ``scale_check(pooled=True)`` (1: spread proportional to level, i.e.
+    multiplicative; 0: additive); dotted guides of slope 0 and 1 pass through the groups' centre.
+
+    Parameters
+    ----------
+    obj, value, by, dim
+        As in :func:`hist`.
+    pooled : bool, default False
+        One profile for all groups together.
+    confidence_level : float, default 0.95
+        Level of the λ intervals (and of the cut-off drawn).
+    margin : float, default 2
+        AIC margin of the verdict shown in the legend (``scale_check(margin=)``).
+    detection_limit : number or column name, optional
+        With non-detects the profile of the uncensored likelihood would mislead, so the left panel
+        then only says so; the right panel uses the detected values.
+    nonpositive : {"raise", "drop", "nan"}
+        Zeros and negatives: refuse, or leave them out.
+    lambdas : array_like, optional
+        Grid of powers (default −1.5 to 2.5, widened to include every interval).
+    palette, units, title
+        As in :func:`hist`.
+    ax : pair of Axes, optional
+
+    Returns
+    -------
+    numpy.ndarray of two Axes ``[profile, spread]``.
+
+    References
+    ----------
+    Box, G. E. P. & Cox, D. R. (1964). An analysis of transformations. Journal of the Royal
+    Statistical Society B 26:211-252.
+    """
+    import matplotlib.pyplot as plt
+
+    _check_policy(nonpositive)
+    data = _prepare(obj, value, by, None, dim, units)
+    y = _logs(data, "drop" if detection_limit is not None else nonpositive)  # censored zeros are no error
+    x = data.frame[data.value].to_numpy(dtype=np.float64)
+    policy = "drop" if nonpositive == "raise" else nonpositive
+    usable = np.isfinite(y)
+    if detection_limit is not None:
+        dl = (pd.to_numeric(obj[detection_limit], errors="coerce").to_numpy(dtype=float)
+              if isinstance(detection_limit, str) else np.full(len(x), float(detection_limit)))
+        usable &= ~(x <= dl)
+    if ax is None:
+        fig, axs = plt.subplots(1, 2, figsize=(10.4, 4.2), layout="constrained")
+        axes = list(axs.ravel())
+    else:
+        axes = list(np.ravel(ax))
+        if len(axes) < 2:
+            raise ValueError("plot_scale needs a pair of Axes in ax= (profile, spread)")
+        if axes[0].get_shared_x_axes().joined(axes[0], axes[1]) or \
+                axes[0].get_shared_y_axes().joined(axes[0], axes[1]):
+            raise ValueError("plot_scale: the two Axes in ax= share an axis, but the profile is on linear "
+                             "axes and the spread plot on log axes; pass Axes created without sharex/sharey")
+    prof, spread = axes[0], axes[1]
+    colors = _palette(palette)
+    masks = data.group_masks()
+    kw: dict[str, Any] = dict(columns=data.value, confidence_level=confidence_level, margin=margin,
+                              nonpositive=policy)
+    if detection_limit is not None:
+        frame = data.frame.assign(__dl__=dl)
+        kw["detection_limit"] = "__dl__"
+    else:
+        frame = data.frame
+    per = _by_group(frame.logstats.scale_check(by=data.by, **kw), data)
+    pooled_res = None
+    if data.by is not None and len(masks) > 1:
+        pr = frame.logstats.scale_check(by=data.by, pooled=True, **kw)
+        pooled_res = pr.iloc[0] if isinstance(pr, pd.DataFrame) else pr
+    cut = 0.5 * float(stats.chi2.ppf(confidence_level, 1))
+    if detection_limit is not None:
+        prof.text(0.5, 0.5, "Box-Cox profile not drawn:\nwith non-detects the uncensored\nlikelihood would "
+                  "mislead", transform=prof.transAxes, ha="center", va="center", fontsize="small",
+                  color="0.3")
+    else:
+        if pooled or len(masks) == 1:
+            res = pooled_res if (pooled and pooled_res is not None) else per.iloc[0]
+            curves = [("all groups, pooled" if pooled and len(masks) > 1 else _group_name(masks[0][0]),
+                       usable, res, colors[0])]
+        else:
+            curves = [(_group_name(g), mask & usable, per.iloc[i], colors[i % len(colors)])
+                      for i, (g, mask) in enumerate(masks)]
+        lo_all = [float(r["boxcox_ci_low"]) for *_, r, _c in curves if np.isfinite(r["boxcox_ci_low"])]
+        hi_all = [float(r["boxcox_ci_high"]) for *_, r, _c in curves if np.isfinite(r["boxcox_ci_high"])]
+        grid = (np.asarray(lambdas, dtype=np.float64) if lambdas is not None else
+                np.linspace(min([-1.5, *lo_all]) - 0.25, max([2.5, *hi_all]) + 0.25, 161))
+        if pooled and data.by is not None:
+            codes_all = np.full(len(x), -1)
+            for i, (_g, mask) in enumerate(masks):
+                codes_all[mask] = i
+        for name, m, res, c in curves:
+            xs = x[m]
+            if xs.size < 3:
+                continue
+            if pooled and data.by is not None and len(masks) > 1:
+                codes = pd.factorize(codes_all[m])[0]
+                ll = boxcox_profile(xs, grid, groups=codes)
+            else:
+                ll = boxcox_profile(xs, grid)
+            with np.errstate(invalid="ignore"):
+                rel = ll - np.nanmax(ll)
+            lam, lo, hi = (float(res["boxcox_lambda"]), float(res["boxcox_ci_low"]),
+                           float(res["boxcox_ci_high"]))
+            label = f"{name}: λ = {lam:.2f} [{lo:.2f}, {hi:.2f}], {res['preferred']}"
+            prof.plot(grid, rel, color=c, linewidth=1.8, label=label, gid="profile")
+            if np.isfinite(lo) and np.isfinite(hi):
+                prof.axvspan(lo, hi, color=c, alpha=0.12 if len(curves) > 1 else 0.2, linewidth=0,
+                             gid="interval")
+            if np.isfinite(lam):
+                prof.plot([lam], [0.0], "o", color=c, markersize=5)
+        prof.axhline(-cut, color="0.4", linestyle=":", linewidth=1.0)
+        for v, text, at in ((0.0, "λ = 0: logs", 1.0), (1.0, "λ = 1: linear", 0.93)):
+            prof.axvline(v, color="0.25", linestyle="--", linewidth=1.0, gid=f"lambda-{v:g}")
+            prof.annotate(text, (v, at), xycoords=("data", "axes fraction"), xytext=(3, -3),
+                          textcoords="offset points", ha="left", va="top", fontsize="small", color="0.25")
+        bottom = max(-6.0 * cut, float(np.nanmin([ln.get_ydata().min() for ln in prof.lines
+                                                  if ln.get_gid() == "profile"] or [-4.0 * cut])))
+        prof.set_ylim(bottom, 0.6 * cut)
+        handles, _ = prof.get_legend_handles_labels()
+        if handles:
+            prof.legend(fontsize="x-small", frameon=False, loc="lower center")
+    prof.set_xscale("linear")
+    prof.set_xlabel("Box-Cox power λ")
+    prof.set_ylabel("profile log-likelihood − maximum")
+    prof.set_title(f"Box-Cox profile ({100 * confidence_level:g} % interval shaded)", fontsize="medium")
+    _finish_axes(prof)
+
+    sub = data.frame.assign(**{data.value: np.where(usable, x, np.nan)})
+    res_lin = _by_group(sub.logstats.summary(by=data.by, columns=data.value, linear=True, nonpositive="drop"),
+                        data)
+    means, sds = res_lin["mean"].to_numpy(dtype=float), res_lin["sd"].to_numpy(dtype=float)
+    ok = np.isfinite(means) & np.isfinite(sds) & (means > 0) & (sds > 0)
+    for i, (g, _m) in enumerate(masks):
+        if ok[i]:
+            spread.plot([means[i]], [sds[i]], "o", color=colors[i % len(colors)], markersize=7,
+                        markeredgecolor="black", markeredgewidth=0.6, label=_group_name(g), gid="group")
+    spread.set_xscale("log")
+    spread.set_yscale("log")
+    slope = float(pooled_res["spread_slope"]) if pooled_res is not None else np.nan
+    if pooled_res is not None and ok.sum() >= 3 and np.isfinite(slope):
+        lx, ly = np.log(means[ok]), np.log(sds[ok])
+        cx, cy = float(lx.mean()), float(ly.mean())
+        span = np.linspace(lx.min() - 0.1 * (np.ptp(lx) + 0.1), lx.max() + 0.1 * (np.ptp(lx) + 0.1), 50)
+        lo_s, hi_s = float(pooled_res["spread_slope_ci_low"]), float(pooled_res["spread_slope_ci_high"])
+        spread.plot(np.exp(span), np.exp(cy + slope * (span - cx)), color="black", linewidth=1.6,
+                    gid="spread-fit", label=f"fitted slope {slope:.2f} [{lo_s:.2f}, {hi_s:.2f}]")
+        for sl, text, style in ((1.0, "slope 1: multiplicative", "-."), (0.0, "slope 0: additive", ":")):
+            spread.plot(np.exp(span), np.exp(cy + sl * (span - cx)), color="0.55", linestyle=style,
+                        linewidth=1.0, label=text)
+    else:
+        why = ("mean-spread slope needs 3 or more groups" if ok.sum() < 3 else
+               "mean-spread slope not computed (see the scale check's note)")
+        spread.text(0.5, 0.05, why, transform=spread.transAxes,
+                    ha="center", va="bottom", fontsize="small", color="0.3")
+    readable_log_axis(spread.xaxis)
+    readable_log_axis(spread.yaxis)
+    spread.set_xlabel(f"group mean of {data.label}, log scale")
+    spread.set_ylabel("group SD (ddof = 1), log scale")
+    spread.set_title("spread against level across groups", fontsize="medium")
+    handles, _ = spread.get_legend_handles_labels()
+    if handles:
+        spread.legend(fontsize="x-small", frameon=False, loc="upper left", bbox_to_anchor=(1.0, 1.0))
+    _finish_axes(spread)
+    if title is not None:
+        prof.figure.suptitle(title)
+    return np.array([prof, spread], dtype=object)
+
+
 def _thin(n: int, max_points: int | None) -> np.ndarray:
     if max_points is None or n <= max_points:
         return np.arange(n)
@@ -924,3 +1243,4 @@ def _thin(n: int, max_points: int | None) -> np.ndarray:
 plot_hist = hist
 plot_groups = groups
 plot_qq = qq
+plot_scale = scale

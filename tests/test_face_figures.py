@@ -130,11 +130,15 @@ def test_report_figures_scales_labels_and_panels(monkeypatch):
     drawn: list = []
     monkeypatch.setattr(report, "FIGURE_LOG", drawn)
     report.build_report(df, value="conc", by="arm", replicate="plate", reference="g1")
-    assert len(drawn) == 3
+    assert len(drawn) == 4  # the scale section's Box-Cox / mean-spread figure joined the three
     for caption, fig in drawn:
         _check_figure(fig)
         axes = [a for a in fig.axes if a.get_visible()]
-        if caption.startswith("Histogram"):
+        if caption.startswith("Box-Cox profile"):
+            assert "left, linear axes" in caption and "right, log-log axes" in caption
+            assert axes[0].get_xscale() == axes[0].get_yscale() == "linear"
+            assert axes[1].get_xscale() == axes[1].get_yscale() == "log"
+        elif caption.startswith("Histogram"):
             assert "log x axis" in caption
             assert len(axes) == 5
             for a in axes:  # every panel of the grid says what it shows

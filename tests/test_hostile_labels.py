@@ -210,3 +210,67 @@ def test_every_value_is_counted_somewhere(values, keys, method):
     pd.testing.assert_frame_equal(df, before)  # inputs never mutated
     counted = int(out["n"].sum() + out["n_missing"].sum() + out["n_nonpositive"].sum())
     assert counted + out.attrs.get("n_without_key", 0) == len(df)
+
+
+# ------------------------------------------------------------------ 10. extreme magnitudes, every method
+@pytest.mark.parametrize("scale", [1e-300, 1e300, 1.0])
+def test_every_declared_method_runs_at_extreme_magnitudes_without_warnings(scale):
+    """pytest turns every warning into an error here (pyproject filterwarnings), so a numpy
+    RuntimeWarning from any method fails the test; the geometric mean scales exactly (a property of
+    the log transform: gmean(c x) = c gmean(x))."""
+    from tests.test_contract import CALLS
+
+    x = RNG.lognormal(0.0, 0.3, 40) * scale
+    df = pd.DataFrame({"g": np.repeat(["a", "b"], 20), "day": np.tile(np.repeat([1, 2], 10), 2),
+                       "well": np.tile(np.repeat(["A", "B"], 5), 4), "x": x})
+    for name, calls in CALLS.items():
+        kw = dict(calls[0])
+        if name == "exceedance":
+            kw["limit"] = 2.0 * scale
+        out = getattr(df.logstats, name)(by="g", columns="x", **kw)
+        assert len(out) >= 1, name
+    ref = stats.gmean(x / scale) * scale  # scipy.stats.gmean on the rescaled values
+    assert df.logstats.gmean(by="g", columns="x")["x"].to_numpy() == pytest.approx(
+        [stats.gmean(x[:20] / scale) * scale, stats.gmean(x[20:] / scale) * scale], rel=1e-12)
+    assert np.isfinite(ref)
+
+
+# ------------------------------------------------------------------ the same classes on xarray and dask
+def test_xarray_counts_add_up_and_inputs_are_not_mutated():
+    vals = np.r_[X, np.nan, 0.0, -1.0]
+    keys = np.concatenate([G, ["a", "b", None]]).astype(object)
+    keys[3] = None
+    da = xr.DataArray(vals, dims="cell", coords={"g": ("cell", keys)})
+    before = da.copy(deep=True)
+    for method in ("summary", "fit", "scale_check", "quantile", "exceedance"):
+        kw = {"limit": 3.0} if method == "exceedance" else {}
+        with pytest.warns(LogstatsWarning) if False else _no_warning():
+            out = getattr(da.logstats, method)("cell", by="g", nonpositive="drop", **kw)
+        counted = int(out["n"].sum() + out["n_missing"].sum() + out["n_nonpositive"].sum())
+        assert counted + 2 == vals.size, method  # two rows have no key (None)
+    xr.testing.assert_identical(da, before)
+    with pytest.raises(TypeError, match="not numeric"):
+        xr.DataArray(X + 1j, dims="cell").logstats.gmean("cell")
+    with pytest.raises(ValueError, match=r"\+inf \(in group\(s\) 'b'\)"):
+        xr.DataArray(np.r_[X[:6], np.inf, X[7:]], dims="cell",
+                     coords={"g": ("cell", G)}).logstats.summary("cell", by="g")
+
+
+def _no_warning():
+    import contextlib
+
+    return contextlib.nullcontext()
+
+
+@pytest.mark.skipif(pytest.importorskip("dask") is None, reason="dask")
+def test_dask_dataframe_unusual_labels_equal_pandas():
+    import dask.dataframe as dd
+
+    df = pd.DataFrame({"g": G, "x": X, "y": 2 * X})
+    ddf = dd.from_pandas(df, npartitions=3)
+    for method in ("summary", "quantile", "scale_check"):
+        a = getattr(ddf.logstats, method)(by="g").compute()
+        b = getattr(df.logstats, method)(by="g")
+        # dask hands text columns back as pyarrow strings: values compared, dtypes by kind
+        pd.testing.assert_frame_equal(a, b, check_index_type=False, check_dtype=False, check_exact=False,
+                                      rtol=1e-12)

@@ -103,7 +103,7 @@ def test_self_contained(report):
     doc = _parse(report)
     assert doc.external == []  # nothing fetched: no external src or href
     assert "script" not in doc.tags and "link" not in doc.tags
-    assert len(doc.images) == 3  # histogram, groups, probability plots
+    assert len(doc.images) == 4  # scale evidence (Box-Cox, mean-spread), histogram, groups, probability plots
     for src in doc.images:
         assert src.startswith("data:image/png;base64,")
         assert base64.b64decode(src.split(",", 1)[1])[:8] == b"\x89PNG\r\n\x1a\n"
@@ -231,6 +231,11 @@ def test_every_report_panel_on_the_scale_its_caption_names(plates, monkeypatch):
             assert lo <= np.nanmin(x) * 1.0001 and hi >= np.nanmax(x) * 0.9999
         elif caption.startswith("Histogram"):
             assert all(a.get_xscale() == "log" for a in axes)
+        elif caption.startswith("Box-Cox profile"):  # left linear axes, right log-log axes
+            assert "left, linear axes" in caption and "right, log-log axes" in caption
+            prof, spread = axes[:2]
+            assert prof.get_xscale() == "linear" and prof.get_yscale() == "linear"
+            assert spread.get_xscale() == "log" and spread.get_yscale() == "log"
         else:
             assert all(a.get_yscale() == "log" for a in axes)
     assert seen_qq

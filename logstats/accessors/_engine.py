@@ -47,8 +47,17 @@ def raise_for_counts(counts: Any, *, policy: Policy, where: str, labels: Sequenc
     total = int(counts.sum())
     if total:
         per_group = counts.reshape(-1, counts.shape[-1]).sum(axis=0) if counts.ndim else counts.reshape(1)
-        groups = [labels[int(i)] for i in np.flatnonzero(per_group)] if labels is not None else None
+        groups = [_plain(labels[int(i)]) for i in np.flatnonzero(per_group)] if labels is not None else None
         raise ValueError(nonpositive_message(where, total, groups))
+
+
+def _plain(label: Any) -> Any:
+    """A label as it prints in Python (``'b'``, ``3``), not as a numpy scalar (``np.str_('b')``)."""
+    if isinstance(label, np.generic):
+        return label.item()
+    if isinstance(label, tuple):
+        return tuple(_plain(v) for v in label)
+    return label
 
 
 def inf_message(where: str, posinf: np.ndarray, codes: np.ndarray | None,
@@ -57,7 +66,7 @@ def inf_message(where: str, posinf: np.ndarray, codes: np.ndarray | None,
     grp = ""
     if codes is not None and labels is not None:
         hit = np.unique(np.asarray(codes)[posinf & (np.asarray(codes) >= 0)])
-        shown = ", ".join(repr(labels[int(i)]) for i in hit[:5])
+        shown = ", ".join(repr(_plain(labels[int(i)])) for i in hit[:5])
         more = f" and {len(hit) - 5} more" if len(hit) > 5 else ""
         grp = f" (in group(s) {shown}{more})" if len(hit) else ""
     return (f"{where} holds {int(posinf.sum())} value(s) of +inf{grp}; logstats refuses +inf always "

@@ -15,7 +15,7 @@ import pandas as pd
 
 from logstats.accessors._api import install
 from logstats.accessors._engine import compare, compare_nested, compute, warn_if_empty
-from logstats.accessors._face import FigureMethods
+from logstats.accessors._face import FigureMethods, ReportMethods
 from logstats.accessors._labels import (
     Groups,
     column_values,
@@ -50,7 +50,7 @@ def tidy_frame(fields: dict[str, np.ndarray], index: pd.Index) -> pd.DataFrame:
     return pd.DataFrame(out, index=index)
 
 
-class _PandasBase(FigureMethods):
+class _PandasBase(FigureMethods, ReportMethods):
     _obj: Any
 
     # ------------------------------------------------------------------ plumbing
@@ -305,12 +305,6 @@ class _PandasBase(FigureMethods):
         for col in value_columns(df, columns):
             out[col] = exp_values(column_values(df[col], col), base=base, where=_where(col))
         return out
-
-    def report(self, *args: Any, **kwargs: Any) -> str:
-        """A self-contained HTML report of the whole analysis; see :func:`logstats.report.build_report`."""
-        from logstats import report
-
-        return report.build_report(self._obj, *args, **kwargs)
 
 
 def fold_change_frame(results: list[tuple[Hashable, dict[str, np.ndarray]]], level_index: pd.Index, ref: int,

@@ -62,7 +62,7 @@ class Plan:
             # (it is one label per position, small next to the data, which stay lazy)
             codes, uniques = pd.factorize(coord.to_numpy(), sort=True, use_na_sentinel=True)
             self.codes: np.ndarray | None = np.asarray(codes, dtype=np.intp)
-            self.labels: list[Any] | None = list(uniques)
+            self.labels: list[Any] | None = pd.Index(uniques).tolist()  # Python scalars, as pandas gives
             self.group_index: pd.Index | None = pd.Index(uniques, name=by)
             self.n_unkeyed = int((codes < 0).sum())
         else:
