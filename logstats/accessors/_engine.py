@@ -401,16 +401,75 @@ def compare(values: np.ndarray, level_codes: np.ndarray, n_levels: int, referenc
 
         lim = np.broadcast_to(np.asarray(policy.detection_limit, dtype=np.float64), np.shape(values))
         keep = {k: kw[k] for k in ("confidence_level", "adjust", "skipna", "nonpositive")}
-        if replicate_codes is not None or params.get("paired") or params.get("equivalence") is not None:
-            raise ValueError("detection_limit= in fold_change works with every value as a unit: it does not "
-                             "combine with replicate=, paired=True or equivalence= yet")
-        res = censored_fold_change(values, level_codes, n_levels, reference, detection_limit=lim,
-                                   stratum_codes=stratum_codes, n_strata=n_strata, **keep)
+        if replicate_codes is not None:
+            res = _censored_replicates(values, level_codes, n_levels, reference, lim, policy=policy,
+                                       stratum_codes=stratum_codes, n_strata=n_strata,
+                                       replicate_codes=replicate_codes, n_replicates=int(n_replicates or 0),
+                                       kw=kw, where=where)
+        elif params.get("paired") or params.get("equivalence") is not None:
+            raise ValueError("detection_limit= in fold_change with every value as a unit does not combine "
+                             "with paired=True or equivalence= (pass replicate= to compare replicates)")
+        else:
+            res = censored_fold_change(values, level_codes, n_levels, reference, detection_limit=lim,
+                                       stratum_codes=stratum_codes, n_strata=n_strata, **keep)
     else:
         res = kernel(md.kernel)(values, level_codes, n_levels, reference, stratum_codes=stratum_codes,
                                 n_strata=n_strata, replicate_codes=replicate_codes,
                                 n_replicates=n_replicates, where=where, **kw)
     raise_for_counts(res["n_nonpositive"], policy=policy, where=where, labels=labels)
+    return res
+
+
+def _censored_replicates(values: np.ndarray, level_codes: np.ndarray, n_levels: int, reference: int,
+                         limit: np.ndarray, *, policy: Policy, stratum_codes: np.ndarray | None,
+                         n_strata: int, replicate_codes: np.ndarray, n_replicates: int, kw: dict[str, Any],
+                         where: str) -> dict[str, np.ndarray]:
+    """Replicates as the unit with non-detects: each replicate's location is its censored log-normal
+    MLE (``mu``, all replicates fitted together), and the replicate locations are compared as the
+    uncensored ``fold_change(replicate=)`` compares replicate means of logs (Welch / Student / paired).
+
+    A replicate whose values are all censored has no location; it is counted in ``n_unestimable``.
+    """
+    from logstats.stats.censored import fit_lognormal
+    from logstats.stats.compare import fold_change_codes
+
+    x = as_float_array(values, where=where)
+    lc = np.asarray(level_codes, dtype=np.int64)
+    sc = np.zeros(x.shape[0], dtype=np.int64)
+    if stratum_codes is not None:
+        sc = np.asarray(stratum_codes, dtype=np.int64)
+    rc = np.asarray(replicate_codes, dtype=np.int64)
+    L, S, R = int(n_levels), int(n_strata), max(int(n_replicates), 1)
+    keyed = (lc >= 0) & (sc >= 0) & (rc >= 0)
+    key = ((sc * L + lc) * R + rc)[keyed]
+    uniq, unit = np.unique(key, return_inverse=True)
+    fit = fit_lognormal(x[keyed], unit.ravel(), len(uniq), detection_limit=limit[keyed],
+                        nonpositive=policy.kernel_nonpositive, skipna=policy.skipna)
+    mu = np.asarray(fit["mu"], dtype=np.float64)
+    cell = uniq // R
+    with np.errstate(over="ignore"):
+        unit_values = np.exp(mu)
+    opts = {k: v for k, v in kw.items() if k not in ("nonpositive", "skipna")}
+    res = fold_change_codes(unit_values, (cell % L).astype(np.intp), L, reference,
+                            stratum_codes=(cell // L).astype(np.intp), n_strata=S,
+                            replicate_codes=(uniq % R).astype(np.intp), n_replicates=R, where=where,
+                            nonpositive="drop", skipna=True, **opts)
+    SL = S * L
+
+    def per_cell(w: Any) -> np.ndarray:
+        return np.bincount(cell, weights=np.asarray(w, dtype=np.float64), minlength=SL).astype(
+            np.int64).reshape(S, L)
+
+    shape = (S, L)
+    res["n_cells"] = per_cell(fit["n"])
+    res["n_cells_reference"] = np.repeat(res["n_cells"][:, [reference]], L, axis=1)
+    res["n_missing"] = per_cell(fit["n_missing"])
+    res["n_nonpositive"] = per_cell(fit["n_nonpositive"])
+    res["n_missing_reference"] = np.repeat(res["n_missing"][:, [reference]], L, axis=1)
+    res["n_nonpositive_reference"] = np.repeat(res["n_nonpositive"][:, [reference]], L, axis=1)
+    res["n_censored"] = per_cell(fit["n_censored"])
+    res["n_censored_reference"] = np.repeat(res["n_censored"][:, [reference]], L, axis=1)
+    res["n_unestimable"] = per_cell(~np.isfinite(mu)).reshape(shape)
     return res
 
 
