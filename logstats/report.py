@@ -923,7 +923,10 @@ def _verdict_sentences(chk: pd.DataFrame, margin: float) -> list[str]:
         if np.isfinite(lam) and np.isfinite(lo) and np.isfinite(hi):
             supported = [f"{v:g}" for v in (0.0, 1 / 3, 0.5, 1.0) if lo <= v <= hi]
             names = {"0": "0 (logs)", "0.333333": "1/3", "0.5": "1/2", "1": "1 (linear)"}
-            text += (f"; the Box-Cox power is {lam:.2f} (interval {lo:.2f} to {hi:.2f}), which "
+            def two(v: float) -> str:  # no "-0.00": a power that rounds to zero reads as 0.00
+                return f"{v:.2f}".replace("-0.00", "0.00")
+
+            text += (f"; the Box-Cox power is {two(lam)} (interval {two(lo)} to {two(hi)}), which "
                      + ("supports " + ", ".join(names.get(v, v) for v in supported) if supported
                         else "excludes 0, 1/3, 1/2 and 1") )
         out.append(f"<b>{name}</b>: {text}.")
