@@ -40,7 +40,9 @@ from __future__ import annotations
 import argparse
 import contextlib
 import csv
+import gzip
 import io
+import lzma
 import os
 import re
 import shlex
@@ -49,6 +51,7 @@ import sys
 import textwrap
 import time
 import warnings
+import zlib
 from collections.abc import Callable, Hashable, Sequence
 from pathlib import Path
 from typing import Any
@@ -339,6 +342,9 @@ def read_table(path: str, *, fmt: str | None = None, sep: str | None = None, dec
             df = pd.read_csv(source, encoding=enc if path != "-" else None, **kw)
     except (DataError, UsageError):
         raise
+    except (EOFError, zlib.error, gzip.BadGzipFile, lzma.LZMAError) as exc:
+        raise DataError(f"{path}: cannot be decompressed ({exc}); the file looks truncated or corrupt: "
+                        "copy or download it again, or pass the uncompressed table") from exc
     except pd.errors.EmptyDataError as exc:
         raise DataError(f"{path}: the file is empty; a table needs a header line naming its columns "
                         "and one line per row") from exc
