@@ -274,3 +274,21 @@ def test_dask_dataframe_unusual_labels_equal_pandas():
         # dask hands text columns back as pyarrow strings: values compared, dtypes by kind
         pd.testing.assert_frame_equal(a, b, check_index_type=False, check_dtype=False, check_exact=False,
                                       rtol=1e-12)
+
+
+def test_wide_tables_take_one_pass_and_equal_the_column_by_column_answer():
+    """Many value columns go through the engine together; the result must be the one the per-column
+    path gives (pandas concat of one-column results as the reference), refusals naming the right column."""
+    cols = [f"c{i}" for i in range(40)] + [("t", 1), 7]
+    wide = pd.DataFrame(RNG.lognormal(size=(60, len(cols))), columns=pd.Index(cols, tupleize_cols=False))
+    wide["g"] = np.repeat(["a", "b", "c"], 20)
+    together = wide.logstats.summary(by="g")
+    one_by_one = pd.concat([wide.logstats.summary(by="g", columns=[c]).assign(_v=[c] * 3) for c in cols])
+    np.testing.assert_allclose(together["gmean"].to_numpy(), one_by_one["gmean"].to_numpy(), rtol=1e-12)
+    assert list(together.index.get_level_values("variable")) == list(one_by_one["_v"])
+    np.testing.assert_array_equal(together["n"].to_numpy(), one_by_one["n"].to_numpy())
+    bad = wide.copy()
+    bad.iloc[5, 40] = 0.0  # the column labelled ("t", 1), group "a"
+    with pytest.raises(ValueError, match=r"column \('t', 1\) holds 1 value\(s\) at or below zero "
+                                         r"\(in group\(s\) 'a'\)"):
+        bad.logstats.summary(by="g")

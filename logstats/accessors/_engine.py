@@ -376,6 +376,31 @@ def compute(method: Method | str, data: Any, *, nred: int = 1, codes: np.ndarray
     return out
 
 
+def compute_columns(method: Method, data: np.ndarray, *, wheres: Sequence[str], codes: np.ndarray | None,
+                    ngroups: int | None, policy: Policy, params: dict[str, Any],
+                    labels: Sequence[Any] | None) -> dict[str, np.ndarray]:
+    """A moment method for many value columns at once: ``data`` is ``(columns, values)``, one pass over
+    all of them (no per-column Python work), refusals naming the first column at fault. Fields have
+    shape ``(columns,)`` (plus ``(ngroups,)`` with ``codes``)."""
+    params = {**method.defaults(), **params}
+    params.pop("detection_limit", None)
+    try:
+        m = _moments(data, 1, codes, ngroups, "the input")
+    except ValueError as exc:
+        if "+inf" not in str(exc):
+            raise
+        hit = np.isposinf(data)
+        i = int(np.flatnonzero(hit.any(axis=1))[0])
+        raise ValueError(inf_message(wheres[i], hit[i], codes, labels)) from None
+    if policy.nonpositive == "raise":
+        bad = np.asarray(m.n_nonpositive).reshape(len(wheres), -1)
+        hit_cols = np.flatnonzero(bad.sum(axis=1))
+        if hit_cols.size:
+            i = int(hit_cols[0])
+            raise_for_counts(bad[i], policy=policy, where=wheres[i], labels=labels)
+    return finalize_moments(method, m, policy=policy, params=params, where=wheres[0], labels=labels)
+
+
 def _addons() -> dict[str, tuple[tuple[str, Method], ...]]:
     from logstats.methods import LINEAR
 

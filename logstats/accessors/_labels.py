@@ -208,13 +208,14 @@ def value_items(df: pd.DataFrame, columns: Any,
     position (as ``groupby(...).agg`` would). Default: numeric, non-boolean columns that are neither
     keys nor limits nor identifier-like integer columns (:data:`IDENTIFIER_WORDS`)."""
     labels = list(df.columns)
+    dtypes = list(df.dtypes)  # once: df.dtypes is rebuilt on every access
     if columns is None:
         skip = [k for k in exclude]
         items = []
         for i, c in enumerate(labels):
-            if any(_same_label(c, k) for k in skip):
+            if skip and any(_same_label(c, k) for k in skip):
                 continue
-            dt = df.dtypes.iloc[i]
+            dt = dtypes[i]
             if _is_value_dtype(dt) and not looks_like_identifier(c, dt):
                 items.append((c, i))
         if not items:
@@ -235,9 +236,9 @@ def value_items(df: pd.DataFrame, columns: Any,
     items = []
     for c in wanted:
         items += [(c, int(i)) for i in np.flatnonzero([_same_label(c, x) for x in labels])]
-    bad = [(c, i) for c, i in items if not _is_value_dtype(df.dtypes.iloc[i])]
+    bad = [(c, i) for c, i in items if not _is_value_dtype(dtypes[i])]
     if bad:
-        kinds = ", ".join(f"{c!r} ({df.dtypes.iloc[i]})" for c, i in bad)
+        kinds = ", ".join(f"{c!r} ({dtypes[i]})" for c, i in bad)
         raise TypeError(
             f"column(s) {kinds} are not numeric; logstats needs positive real numbers. Convert them "
             f"(e.g. pd.to_numeric) or leave them out of columns=.{_why_not_numeric(df, bad)}"

@@ -256,7 +256,7 @@ def _finish(merged: tuple[Any, int], req: _Request) -> Any:
         if req.by is None:
             m = m.take(0)
         out = finalize_moments(md, m, policy=policy, params=dict(req.params or {}),
-                               where=describe_where(column=str(col)), labels=labels)
+                               where=describe_where(column=col), labels=labels)
         results.append((col, out))
     groups = None
     if index is not None:
@@ -379,9 +379,9 @@ def _fold_finish(merged: tuple[Any, int], req: _FoldRequest) -> Any:
         stratum_level = np.asarray(scodes, dtype=np.intp) * len(levels) + lcodes
         ref = levels.index(req.reference)
         res = compare_from_moments(m, stratum_level, len(levels), ref, policy=policy, labels=levels,
-                                   where=describe_where(column=str(col)), params=opts, **layout)
+                                   where=describe_where(column=col), params=opts, **layout)
         keep = [i for i in range(len(levels)) if i != ref]
-        warn_if_empty(res["ratio"][:, keep], reference=req.reference, where=describe_where(column=str(col)),
+        warn_if_empty(res["ratio"][:, keep], reference=req.reference, where=describe_where(column=col),
                       paired=bool(opts.get("paired")), n=res["n"][:, keep],
                       n_reference=res["n_reference"][:, keep], stacklevel=2)
         results.append((col, res))

@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 
 from logstats.accessors._api import install
-from logstats.accessors._engine import compare, compare_nested, compute, warn_if_empty
+from logstats.accessors._engine import compare, compare_nested, compute, compute_columns, warn_if_empty
 from logstats.accessors._face import FigureMethods, ReportMethods
 from logstats.accessors._labels import (
     Groups,
@@ -37,7 +37,7 @@ _DEFAULT_NAME = "value"
 
 
 def _where(col: Hashable) -> str:
-    return describe_where(column=str(col))
+    return describe_where(column=col)
 
 
 def tidy_frame(fields: dict[str, np.ndarray], index: pd.Index) -> pd.DataFrame:
@@ -144,6 +144,19 @@ class _PandasBase(FigureMethods, ReportMethods):
             else:
                 args[p] = resolve_limit(df, args.get(p), keyword=p)
         results = []
+        every = {**md.defaults(), **args}
+        if (len(cols) > 1 and md.reduction == "moments" and not every.get("linear")
+                and not md.needs_values(every, policy)):
+            # many value columns of a moment statistic: one pass over all of them, as for a DataArray
+            block = df.iloc[:, [pos for _, pos in cols]].to_numpy(dtype=np.float64, na_value=np.nan)
+            outs = compute_columns(md, np.ascontiguousarray(block.T), wheres=[_where(c) for c, _ in cols],
+                                   codes=groups.codes if groups is not None else None,
+                                   ngroups=groups.ngroups if groups is not None else None, policy=policy,
+                                   params=args, labels=groups.labels if groups is not None else None)
+            res = self._columns_shape(name, md.shape, outs, [c for c, _ in cols], groups)
+            if groups is not None:
+                res.attrs["n_without_key"] = groups.n_unkeyed
+            return res
         for col, pos in cols:
             out = compute(md, column_values(df.iloc[:, pos], col), nred=1,
                           codes=groups.codes if groups is not None else None,
@@ -160,6 +173,26 @@ class _PandasBase(FigureMethods, ReportMethods):
         if groups is not None and hasattr(res, "attrs"):
             res.attrs["n_without_key"] = groups.n_unkeyed  # rows left out for a missing key
         return res
+
+    def _columns_shape(self, name: str, shape: str, outs: dict[str, np.ndarray], labels: list[Hashable],
+                       groups: Groups | None) -> Any:
+        """Fields of shape ``(columns[, groups])`` into the layout the per-column path gives, in one go."""
+        variable = pd.Index(labels, tupleize_cols=False, name="variable")  # as the per-column path
+        if shape == "single":
+            v = np.asarray(outs[name])
+            if groups is None:
+                return pd.Series(v, index=variable, name=name, dtype=np.float64)
+            out = pd.DataFrame(v.T, index=groups.index)
+            out.columns = pd.Index(labels, tupleize_cols=False)
+            return out
+        if groups is None:
+            return pd.DataFrame({k: np.asarray(v) for k, v in outs.items()}, index=variable)
+        k, g = len(labels), groups.ngroups
+        idx = groups.index
+        arrays = [_level_values(idx, i).take(np.tile(np.arange(g), k)) for i in range(idx.nlevels)]
+        arrays.append(pd.Index(labels, tupleize_cols=False, dtype=object).repeat(g))
+        index = pd.MultiIndex.from_arrays(arrays, names=list(idx.names) + ["variable"])
+        return pd.DataFrame({f: np.asarray(v).reshape(k * g) for f, v in outs.items()}, index=index)
 
     def _single_shape(self, name: str, results: list[tuple[Hashable, dict[str, np.ndarray]]],
                       groups: Groups | None) -> Any:

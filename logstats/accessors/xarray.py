@@ -28,7 +28,7 @@ _LOG_UNITS = re.compile(r"^log(?:_(?P<b>e|2|10))?\((?P<u>.*)\)$")
 
 
 def _where(name: Hashable) -> str:
-    return describe_where(column=str(name)).replace("column", "variable")
+    return describe_where(column=name).replace("column", "variable")
 
 
 def _is_value(da: xr.DataArray) -> bool:

@@ -39,7 +39,7 @@ class LogstatsWarning(UserWarning):
     """Warnings issued by logstats itself (never numpy's RuntimeWarnings)."""
 
 
-def describe_where(column: str | None = None, group: Any = None) -> str:
+def describe_where(column: Any = None, group: Any = None) -> str:
     """A phrase such as ``column 'gfp', group 'drug_a'`` for error messages."""
     parts = []
     if column is not None:
