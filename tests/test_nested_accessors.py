@@ -122,3 +122,13 @@ def test_variance_components_needs_nested_and_names_bad_levels():
         df.logstats.variance_components(by="cond", columns="x")
     with pytest.raises(KeyError, match="plate"):
         df.logstats.variance_components(by="cond", nested=["plate"], columns="x")
+
+
+def test_xarray_nested_replicates_equal_pandas():
+    df = _plates(seed=9)
+    fc = df.logstats.fold_change(by="cond", reference="ctl", replicate=["day", "well"])
+    da = xr.DataArray(df["x"].to_numpy(), dims="cell",
+                      coords={k: ("cell", df[k].to_numpy()) for k in ("cond", "day", "well")})
+    x = da.logstats.fold_change("cell", by="cond", reference="ctl", replicate=["day", "well"])
+    for k in ("ratio", "ci_low", "ci_high", "p_value", "n", "n_well", "n_cells"):
+        np.testing.assert_allclose(x[k].to_numpy(), fc[k].to_numpy(), rtol=1e-12, err_msg=k)

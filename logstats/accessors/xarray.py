@@ -16,7 +16,7 @@ import pandas as pd
 import xarray as xr
 
 from logstats.accessors._api import install
-from logstats.accessors._engine import compare, compute, is_dask, warn_if_empty
+from logstats.accessors._engine import compare, compare_nested, compute, is_dask, warn_if_empty
 from logstats.accessors._face import FigureMethods
 from logstats.accessors._labels import nested_codes, nested_levels
 from logstats.core.transform import check_nonpositive, describe_where, exp_values, log_values
@@ -247,7 +247,7 @@ class _XarrayBase(FigureMethods):
             return xr.Dataset({vname: ds[name] for vname, ds in parts})
         return self._tidy(parts)
 
-    def fold_change(self, dim: Any = None, *, by: Hashable, reference: Any, replicate: Hashable | None = None,
+    def fold_change(self, dim: Any = None, *, by: Hashable, reference: Any, replicate: Any = None,
                     paired: bool = False, equal_var: bool = False, confidence_level: float = 0.95,
                     adjust: str | None = "holm", equivalence: tuple[float, float] | None = None,
                     equivalence_alpha: float = 0.05, detection_limit: Any = None, skipna: bool = True,
@@ -275,11 +275,24 @@ class _XarrayBase(FigureMethods):
                                  f"the levels are {plan.labels!r}")
             ref = plan.labels.index(reference)
             rep_codes = n_rep = None
-            if replicate is not None:
-                if replicate not in da.coords or da.coords[replicate].dims != (plan.reduced[0],):
+            nested = None
+            if isinstance(replicate, (list, tuple)) and len(replicate) > 1:  # cells in wells in days
+                along = plan.reduced[0]
+                bad = [k for k in replicate if k not in da.coords or da.coords[k].dims != (along,)]
+                if bad:
+                    raise ValueError(f"replicate={bad!r} must be coordinates along {along!r}")
+                frame = pd.DataFrame({i: da.coords[k].to_numpy() for i, k in enumerate(replicate)})
+                nested = nested_codes(frame)
+                nested[0] = np.asarray(pd.factorize(frame[0], sort=True)[0], dtype=np.intp)
+            elif replicate is not None:
+                if isinstance(replicate, (list, tuple)):
+                    replicate_one = replicate[0]
+                else:
+                    replicate_one = replicate
+                if replicate_one not in da.coords or da.coords[replicate_one].dims != (plan.reduced[0],):
                     along = plan.reduced[0]
                     raise ValueError(f"replicate={replicate!r} must be a coordinate along {along!r}")
-                rc, ru = pd.factorize(da.coords[replicate].to_numpy(), sort=True)
+                rc, ru = pd.factorize(da.coords[replicate_one].to_numpy(), sort=True)
                 rep_codes, n_rep = np.asarray(rc, dtype=np.intp), len(ru)
             elif paired:
                 raise ValueError("paired=True needs replicate= (the coordinate shared by paired replicates)")
@@ -291,10 +304,17 @@ class _XarrayBase(FigureMethods):
             lim = _limit_for(self._obj, da, detection_limit, plan)
             policy = Policy(skipna=skipna, nonpositive=nonpositive,
                             detection_limit=np.reshape(lim, -1) if np.ndim(lim) else lim)
-            res = compare(data.reshape(-1), np.tile(plan.codes, rows), len(plan.labels), ref, policy=policy,
-                          labels=plan.labels, where=_where(name),
-                          stratum_codes=np.repeat(np.arange(rows, dtype=np.intp), width), n_strata=rows,
-                          replicate_codes=rep_tiled, n_replicates=n_rep, params=params)
+            strata = np.repeat(np.arange(rows, dtype=np.intp), width)
+            if nested is not None:
+                res = compare_nested(data.reshape(-1), np.tile(plan.codes, rows), len(plan.labels), ref,
+                                     policy=policy, labels=plan.labels, where=_where(name),
+                                     nested=[np.tile(c, rows) for c in nested],
+                                     names=[str(k) for k in replicate], stratum_codes=strata, n_strata=rows,
+                                     params=params)
+            else:
+                res = compare(data.reshape(-1), np.tile(plan.codes, rows), len(plan.labels), ref,
+                              policy=policy, labels=plan.labels, where=_where(name), stratum_codes=strata,
+                              n_strata=rows, replicate_codes=rep_tiled, n_replicates=n_rep, params=params)
             warn_if_empty(np.asarray(res["ratio"])[:, keep], reference=reference, where=_where(name),
                           paired=paired, n=np.asarray(res["n"])[:, keep],
                           n_reference=np.asarray(res["n_reference"])[:, keep], stacklevel=4)
