@@ -80,7 +80,6 @@ _HINTS: tuple[tuple[str, str], ...] = (
     (r"nonpositive='drop'", "--nonpositive drop"),
     (r"nonpositive='nan'", "--nonpositive nan"),
     (r"nonpositive='raise'", "--nonpositive raise"),
-    (r"detection_limit= \(fit\)", "--detection-limit (logstats fit)"),
     (r"\bdetection_limit=", "--detection-limit "),
     (r"\bcolumns=", "--value "),
     (r"\breplicate=", "--replicate "),

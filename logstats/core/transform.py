@@ -199,5 +199,5 @@ def nonpositive_message(where: str, count: int, groups: Sequence[Any] | None = N
     return (
         f"{where} holds {count} value(s) at or below zero{grp}; their logarithm is undefined. "
         "Pass nonpositive='drop' to exclude and count them, nonpositive='nan' to make the affected "
-        "results NaN, or detection_limit= (fit) if they are non-detects"
+        "results NaN, or detection_limit= if they are non-detects (values at or below a limit)"
     )
