@@ -50,8 +50,9 @@ FAMILIES: dict[str, Family] = {
                  ("columns", None, "Value column(s); default: numeric, non-boolean columns not used as keys "
                                    "or limits (integer columns named like identifiers are left out).")),
         trailing=_POLICY + (("observed", True, "As in ``groupby``: only key combinations that occur."),
-                            ("dropna", True, "As in ``groupby``: rows with a missing key are left out "
-                                             "(counted in a LogstatsWarning)."),
+                            ("dropna", True, "As in ``groupby``: rows with a missing key are left out, "
+                                             "said in a LogstatsWarning and counted in the result's "
+                                             "``attrs[\"n_without_key\"]``."),
                             ("sort", True, "As in ``groupby``: groups in sorted key order.")),
         returns="DataFrame with one row per group (group keys as the index; a ``variable`` level is added "
                 "last when several value columns are summarised); a Series accessor without ``by`` gives "
