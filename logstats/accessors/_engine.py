@@ -427,10 +427,14 @@ def compare(values: np.ndarray, level_codes: np.ndarray, n_levels: int, referenc
         lim = np.broadcast_to(np.asarray(policy.detection_limit, dtype=np.float64), np.shape(values))
         keep = {k: kw[k] for k in ("confidence_level", "adjust", "skipna", "nonpositive")}
         if replicate_codes is not None:
-            res = _censored_replicates(values, level_codes, n_levels, reference, lim, policy=policy,
-                                       stratum_codes=stratum_codes, n_strata=n_strata,
-                                       replicate_codes=replicate_codes, n_replicates=int(n_replicates or 0),
-                                       kw=kw, where=where)
+            from logstats.stats.censored_compare import censored_replicate_fold_change
+
+            test = {k: v for k, v in kw.items() if k not in ("nonpositive", "skipna")}
+            res = censored_replicate_fold_change(
+                values, level_codes, n_levels, reference, detection_limit=lim,
+                replicate_codes=replicate_codes, n_replicates=int(n_replicates or 0),
+                stratum_codes=stratum_codes, n_strata=n_strata,
+                nonpositive=policy.kernel_nonpositive, skipna=policy.skipna, where=where, **test)
         elif params.get("paired") or params.get("equivalence") is not None:
             raise ValueError("detection_limit= in fold_change with every value as a unit does not combine "
                              "with paired=True or equivalence= (pass replicate= to compare replicates)")
@@ -445,139 +449,21 @@ def compare(values: np.ndarray, level_codes: np.ndarray, n_levels: int, referenc
     return res
 
 
-def _censored_replicates(values: np.ndarray, level_codes: np.ndarray, n_levels: int, reference: int,
-                         limit: np.ndarray, *, policy: Policy, stratum_codes: np.ndarray | None,
-                         n_strata: int, replicate_codes: np.ndarray, n_replicates: int, kw: dict[str, Any],
-                         where: str) -> dict[str, np.ndarray]:
-    """Replicates as the unit with non-detects: each replicate's location is its censored log-normal
-    MLE (``mu``, all replicates fitted together), and the replicate locations are compared as the
-    uncensored ``fold_change(replicate=)`` compares replicate means of logs (Welch / Student / paired).
-
-    A replicate whose values are all censored has no location; it is counted in ``n_unestimable``.
-    """
-    from logstats.stats.censored import fit_lognormal
-    from logstats.stats.compare import fold_change_codes
-
-    x = as_float_array(values, where=where)
-    lc = np.asarray(level_codes, dtype=np.int64)
-    sc = np.zeros(x.shape[0], dtype=np.int64)
-    if stratum_codes is not None:
-        sc = np.asarray(stratum_codes, dtype=np.int64)
-    rc = np.asarray(replicate_codes, dtype=np.int64)
-    L, S, R = int(n_levels), int(n_strata), max(int(n_replicates), 1)
-    keyed = (lc >= 0) & (sc >= 0) & (rc >= 0)
-    key = ((sc * L + lc) * R + rc)[keyed]
-    uniq, unit = np.unique(key, return_inverse=True)
-    fit = fit_lognormal(x[keyed], unit.ravel(), len(uniq), detection_limit=limit[keyed],
-                        nonpositive=policy.kernel_nonpositive, skipna=policy.skipna)
-    mu = np.asarray(fit["mu"], dtype=np.float64)
-    cell = uniq // R
-    with np.errstate(over="ignore"):
-        unit_values = np.exp(mu)
-    opts = {k: v for k, v in kw.items() if k not in ("nonpositive", "skipna")}
-    res = fold_change_codes(unit_values, (cell % L).astype(np.intp), L, reference,
-                            stratum_codes=(cell // L).astype(np.intp), n_strata=S,
-                            replicate_codes=(uniq % R).astype(np.intp), n_replicates=R, where=where,
-                            nonpositive="drop", skipna=True, **opts)
-    SL = S * L
-
-    def per_cell(w: Any) -> np.ndarray:
-        return np.bincount(cell, weights=np.asarray(w, dtype=np.float64), minlength=SL).astype(
-            np.int64).reshape(S, L)
-
-    shape = (S, L)
-    res["n_cells"] = per_cell(fit["n"])
-    res["n_cells_reference"] = np.repeat(res["n_cells"][:, [reference]], L, axis=1)
-    res["n_missing"] = per_cell(fit["n_missing"])
-    res["n_nonpositive"] = per_cell(fit["n_nonpositive"])
-    res["n_missing_reference"] = np.repeat(res["n_missing"][:, [reference]], L, axis=1)
-    res["n_nonpositive_reference"] = np.repeat(res["n_nonpositive"][:, [reference]], L, axis=1)
-    res["n_censored"] = per_cell(fit["n_censored"])
-    res["n_censored_reference"] = np.repeat(res["n_censored"][:, [reference]], L, axis=1)
-    res["n_unestimable"] = per_cell(~np.isfinite(mu)).reshape(shape)
-    return res
-
-
 def compare_nested(values: np.ndarray, level_codes: np.ndarray, n_levels: int, reference: int, *,
                    policy: Policy, labels: Sequence[Any], where: str, nested: Sequence[np.ndarray],
                    names: Sequence[str], stratum_codes: np.ndarray | None = None, n_strata: int = 1,
                    params: dict[str, Any]) -> dict[str, np.ndarray]:
-    """Fold changes with nested replicates (e.g. cells in wells in days): the logs are averaged up the
-    nesting (cells to wells, wells to days), and the outermost unit is the replicate of the test.
-
-    ``nested`` holds one code array per level, outermost first; the outermost code is the replicate
-    label shared across levels (what ``paired=True`` pairs); every inner level is read within its
-    outer units and within the level and stratum. Counts per level and stratum: ``n``/``n_reference``
-    (outermost units), ``n_<inner>``/``n_<inner>_reference`` for each inner level, ``n_cells`` (values).
-    """
-    from logstats.stats.nested import unit_log_means
+    """:func:`compare` with nested replicates (:func:`logstats.stats.nested.nested_fold_change`), with
+    the shared policy; shapes ``(n_strata, n_levels)``."""
+    from logstats.stats.nested import nested_fold_change
 
     if policy.censoring:
         raise ValueError("detection_limit= in fold_change does not combine with nested replicate= yet")
-    x = as_float_array(values, where=where)
-    N = x.shape[0]
-    lc = np.asarray(level_codes, dtype=np.intp)
-    sc = np.zeros(N, dtype=np.intp) if stratum_codes is None else np.asarray(stratum_codes, dtype=np.intp)
-    S, L = int(n_strata), int(n_levels)
-    if np.isposinf(x).any():
-        raise ValueError(f"{where} holds {int(np.isposinf(x).sum())} value(s) of +inf; logstats refuses +inf "
-                         "always (replace it with NaN to have it skipped and counted as missing)")
-    keyed = (lc >= 0) & (sc >= 0)
-    cell = np.where(keyed, sc * L + lc, -1)
-    missing = np.isnan(x)
-    with np.errstate(invalid="ignore"):
-        nonpos = x <= 0
-    SL = S * L
-    n_missing = np.bincount(cell[keyed & missing], minlength=SL).astype(np.int64)
-    n_nonpos = np.bincount(cell[keyed & nonpos], minlength=SL).astype(np.int64)
-    raise_for_counts(n_nonpos.reshape(S, L), policy=policy, where=where, labels=labels)
-    labelled = np.ones(N, dtype=bool)
-    for c in nested:
-        labelled &= np.asarray(c) >= 0
-    n_no_rep = np.bincount(cell[keyed & ~labelled], minlength=SL).astype(np.int64)
-    use = keyed & labelled & ~missing & ~nonpos
-    with np.errstate(divide="ignore", invalid="ignore"):
-        y = np.log(np.where(use, x, 1.0))
-    # innermost units within (stratum, level, outer units); averaged up to the level just inside the top
-    outer = np.asarray(nested[0], dtype=np.int64)
-    path = np.stack([cell.astype(np.int64)] + [np.asarray(c, dtype=np.int64) for c in nested], axis=1)
-    counts: dict[str, np.ndarray] = {}
-    unit_y, unit_cell, unit_outer = y[use], cell[use], outer[use]
-    unit_path = path[use]
-    for depth in range(len(nested) - 1, 0, -1):  # deepest first
-        key = unit_path[:, : depth + 2]
-        uniq, codes = np.unique(key, axis=0, return_inverse=True)
-        codes = codes.ravel()
-        means, _ = unit_log_means(unit_y, codes, len(uniq))
-        counts[f"n_{names[depth]}"] = np.bincount(uniq[:, 0], minlength=SL).astype(np.int64)
-        unit_y, unit_path = means, uniq[:, : depth + 1]
-        unit_cell, unit_outer = uniq[:, 0], uniq[:, 1]
-    n_values = np.bincount(cell[use], minlength=SL).astype(np.int64)
-    res = compare(np.exp(unit_y), (unit_cell % L).astype(np.intp), L, reference,
-                  policy=Policy(skipna=True, nonpositive="drop"), labels=labels, where=where,
-                  stratum_codes=(unit_cell // L).astype(np.intp), n_strata=S,
-                  replicate_codes=unit_outer.astype(np.intp), n_replicates=int(outer.max(initial=-1)) + 1,
-                  params=params)
-    shape = (S, L)
-    bad = np.zeros(shape, dtype=bool)
-    if not policy.skipna:
-        bad |= n_missing.reshape(shape) > 0
-    if policy.nonpositive == "nan":
-        bad |= n_nonpos.reshape(shape) > 0
-    bad = bad | bad[:, [reference]]
-    for k, v in res.items():
-        if np.asarray(v).dtype.kind == "f" and not k.startswith("n_"):
-            res[k] = np.where(bad, np.nan, v)
-    res["n_cells"] = n_values.reshape(shape)
-    res["n_cells_reference"] = np.repeat(res["n_cells"][:, [reference]], L, axis=1)
-    for k, v in counts.items():
-        res[k] = v.reshape(shape)
-        res[f"{k}_reference"] = np.repeat(res[k][:, [reference]], L, axis=1)
-    res["n_missing"] = n_missing.reshape(shape)
-    res["n_nonpositive"] = n_nonpos.reshape(shape)
-    res["n_missing_reference"] = np.repeat(res["n_missing"][:, [reference]], L, axis=1)
-    res["n_nonpositive_reference"] = np.repeat(res["n_nonpositive"][:, [reference]], L, axis=1)
-    res["n_no_replicate"] = n_no_rep.reshape(shape)
+    res = nested_fold_change(values, level_codes, n_levels, reference, nested_codes=list(nested),
+                             names=list(names), stratum_codes=stratum_codes, n_strata=n_strata,
+                             nonpositive=policy.kernel_nonpositive, skipna=policy.skipna, where=where,
+                             **params)
+    raise_for_counts(res["n_nonpositive"], policy=policy, where=where, labels=labels)
     return res
 
 

@@ -455,3 +455,53 @@ def censored_fold_change(
         "converged": np.repeat(conv[:, None], L, axis=1),
     })
     return out
+
+
+def censored_replicate_fold_change(values: Any, level_codes: Any, n_levels: int, reference: int, *,
+                                   detection_limit: Any, replicate_codes: Any, n_replicates: int,
+                                   stratum_codes: Any = None, n_strata: int = 1, nonpositive: str = "drop",
+                                   skipna: bool = True, where: str = "the input",
+                                   **test: Any) -> dict[str, np.ndarray]:
+    """Replicates as the unit with non-detects: each replicate's location is its censored log-normal
+    MLE (``mu``; all replicates fitted together by :func:`logstats.stats.censored.fit_lognormal`), and
+    the replicate locations are compared as :func:`logstats.stats.compare.fold_change_codes` compares
+    replicate means of logs (Welch, Student or paired; ``test`` holds its options).
+
+    Arrays of shape ``(n_strata, n_levels)``; counts per level and for the reference: ``n_cells``,
+    ``n_missing``, ``n_nonpositive``, ``n_censored``, and ``n_unestimable`` (replicates whose values are
+    all censored, which have no location).
+    """
+    from logstats.stats.censored import fit_lognormal
+    from logstats.stats.compare import fold_change_codes
+
+    x = _values_1d(values)
+    lc = np.asarray(level_codes, dtype=np.int64)
+    sc = np.zeros(x.shape[0], dtype=np.int64)
+    if stratum_codes is not None:
+        sc = np.asarray(stratum_codes, dtype=np.int64)
+    rc = np.asarray(replicate_codes, dtype=np.int64)
+    L, S, R = int(n_levels), int(n_strata), max(int(n_replicates), 1)
+    limit = np.broadcast_to(np.asarray(detection_limit, dtype=np.float64), x.shape)
+    keyed = (lc >= 0) & (sc >= 0) & (rc >= 0)
+    uniq, unit = np.unique(((sc * L + lc) * R + rc)[keyed], return_inverse=True)
+    fit = fit_lognormal(x[keyed], unit.ravel(), len(uniq), detection_limit=limit[keyed],
+                        nonpositive=nonpositive, skipna=skipna)
+    mu = np.asarray(fit["mu"], dtype=np.float64)
+    cell = uniq // R
+    with np.errstate(over="ignore"):
+        unit_values = np.exp(mu)
+    res = fold_change_codes(unit_values, (cell % L).astype(np.intp), L, reference,
+                            stratum_codes=(cell // L).astype(np.intp), n_strata=S,
+                            replicate_codes=(uniq % R).astype(np.intp), n_replicates=R, where=where,
+                            nonpositive="drop", skipna=True, **test)
+
+    def per_cell(w: Any) -> np.ndarray:
+        return np.bincount(cell, weights=np.asarray(w, dtype=np.float64),
+                           minlength=S * L).astype(np.int64).reshape(S, L)
+
+    for name, counts in (("n_cells", fit["n"]), ("n_missing", fit["n_missing"]),
+                         ("n_nonpositive", fit["n_nonpositive"]), ("n_censored", fit["n_censored"])):
+        res[name] = per_cell(counts)
+        res[f"{name}_reference"] = np.repeat(res[name][:, [reference]], L, axis=1)
+    res["n_unestimable"] = per_cell(~np.isfinite(mu))
+    return res

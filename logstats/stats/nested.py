@@ -455,19 +455,78 @@ def plan_power(
     return np.clip(power, 0.0, 1.0)
 
 
+def _reference_column(v: np.ndarray, reference: int) -> np.ndarray:
+    return np.repeat(v[:, [reference]], v.shape[1], axis=1)
 
-def unit_log_means(logs: np.ndarray, unit_codes: np.ndarray, n_units: int) -> tuple[np.ndarray, np.ndarray]:
-    """Mean of the logs per unit and the number of values in it (``bincount``; NaN for an empty unit).
 
-    The step that turns cells into wells (and wells into days) when a nested design is compared with
-    the outermost unit as the replicate: each unit then counts once, whatever its number of values
-    (Lord et al. 2020).
+def nested_fold_change(values: Any, level_codes: Any, n_levels: int, reference: int, *,
+                       nested_codes: Sequence[Any], names: Sequence[str], stratum_codes: Any = None,
+                       n_strata: int = 1, nonpositive: str = "drop", skipna: bool = True,
+                       where: str = "the input", **test: Any) -> dict[str, np.ndarray]:
+    """Fold changes with nested replicates (cells in wells in days): the logs are averaged up the
+    nesting (cells to wells, wells to days) and the outermost unit is the replicate of the test.
+
+    ``nested_codes`` holds one code array per level, outermost first; the outermost code is the label
+    shared across levels (what ``paired=True`` pairs); every inner level is read within its outer units
+    and within the level and stratum. Each unit counts once whatever its number of values (Lord et al.
+    2020). The test is :func:`logstats.stats.compare.fold_change_codes` on the units just inside the
+    outermost, with the outermost as ``replicate_codes`` (``test`` holds its options). Arrays of shape
+    ``(n_strata, n_levels)``: its fields, plus ``n_cells`` (values), ``n_<inner>`` for each inner level
+    and the ``_reference`` counts; ``nonpositive="raise"`` is the caller's (it acts as ``"drop"``).
     """
-    keep = unit_codes >= 0
-    n = np.bincount(unit_codes[keep], minlength=n_units).astype(np.int64)
-    total = np.bincount(unit_codes[keep], weights=logs[keep], minlength=n_units)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mean = np.where(n > 0, total / np.maximum(n, 1), np.nan)
-    # one correction pass keeps the mean exact to rounding for tightly clustered logs
-    dev = np.bincount(unit_codes[keep], weights=logs[keep] - mean[unit_codes[keep]], minlength=n_units)
-    return np.where(n > 0, mean + dev / np.maximum(n, 1), np.nan), n
+    from logstats.core.moments import log_moments_by_codes
+    from logstats.stats.compare import fold_change_codes
+
+    check_nonpositive(nonpositive)
+    lv = to_logs(values, where=where)
+    N = lv.y.shape[0]
+    lc = np.asarray(level_codes, dtype=np.int64)
+    sc = np.zeros(N, dtype=np.int64) if stratum_codes is None else np.asarray(stratum_codes, dtype=np.int64)
+    S, L = int(n_strata), int(n_levels)
+    SL = S * L
+    keyed = (lc >= 0) & (sc >= 0)
+    cell = np.where(keyed, sc * L + lc, -1)
+    n_missing = np.bincount(cell[keyed & lv.missing], minlength=SL).astype(np.int64)
+    n_nonpos = np.bincount(cell[keyed & lv.nonpositive], minlength=SL).astype(np.int64)
+    labelled = np.ones(N, dtype=bool)
+    for c in nested_codes:
+        labelled &= np.asarray(c) >= 0
+    n_no_rep = np.bincount(cell[keyed & ~labelled], minlength=SL).astype(np.int64)
+    use = keyed & labelled & lv.valid
+    outer = np.asarray(nested_codes[0], dtype=np.int64)
+    path = np.stack([cell] + [np.asarray(c, dtype=np.int64) for c in nested_codes], axis=1)[use]
+    unit_y = lv.y[use]
+    counts: dict[str, np.ndarray] = {}
+    for depth in range(len(nested_codes) - 1, 0, -1):  # deepest level first, up to just inside the top
+        uniq, codes = np.unique(path[:, : depth + 2], axis=0, return_inverse=True)
+        unit_y = np.asarray(log_moments_by_codes(unit_y, codes.ravel(), len(uniq)).mean_log)
+        counts[f"n_{names[depth]}"] = np.bincount(uniq[:, 0], minlength=SL).astype(np.int64)
+        path = uniq[:, : depth + 1]
+    unit_cell, unit_outer = path[:, 0], path[:, 1]
+    with np.errstate(over="ignore"):
+        unit_values = np.exp(unit_y)
+    res = fold_change_codes(unit_values, (unit_cell % L).astype(np.intp), L, reference,
+                            stratum_codes=(unit_cell // L).astype(np.intp), n_strata=S,
+                            replicate_codes=unit_outer.astype(np.intp),
+                            n_replicates=int(outer.max(initial=-1)) + 1, where=where, **test)
+    shape = (S, L)
+    bad = np.zeros(shape, dtype=bool)
+    if not skipna:
+        bad |= n_missing.reshape(shape) > 0
+    if nonpositive == "nan":
+        bad |= n_nonpos.reshape(shape) > 0
+    bad = bad | bad[:, [reference]]
+    for k, v in res.items():
+        if np.asarray(v).dtype.kind == "f" and not k.startswith("n_"):
+            res[k] = np.where(bad, np.nan, v)
+    res["n_cells"] = np.bincount(cell[use], minlength=SL).astype(np.int64).reshape(shape)
+    res["n_cells_reference"] = _reference_column(res["n_cells"], reference)
+    for k, v in counts.items():
+        res[k] = v.reshape(shape)
+        res[f"{k}_reference"] = _reference_column(res[k], reference)
+    res["n_missing"] = n_missing.reshape(shape)
+    res["n_nonpositive"] = n_nonpos.reshape(shape)
+    res["n_missing_reference"] = _reference_column(res["n_missing"], reference)
+    res["n_nonpositive_reference"] = _reference_column(res["n_nonpositive"], reference)
+    res["n_no_replicate"] = n_no_rep.reshape(shape)
+    return res
