@@ -24,7 +24,7 @@ from typing import Any
 import numpy as np
 
 from logstats.core.moments import FIELDS, LogMoments, moments_along, moments_by_codes
-from logstats.core.transform import LogstatsWarning, as_float_array, nonpositive_message
+from logstats.core.transform import LogstatsWarning, as_float_array, nonpositive_message, posinf_message
 from logstats.methods import METHODS, Field, Method, Policy, kernel, resolve
 
 __all__ = ["compare", "compute", "is_dask", "raise_for_counts"]
@@ -62,15 +62,12 @@ def _plain(label: Any) -> Any:
 
 def inf_message(where: str, posinf: np.ndarray, codes: np.ndarray | None,
                 labels: Sequence[Any] | None) -> str:
-    """The ``+inf`` refusal, naming the groups that hold it."""
-    grp = ""
+    """The ``+inf`` refusal (core wording), naming the groups that hold it."""
+    groups = None
     if codes is not None and labels is not None:
         hit = np.unique(np.asarray(codes)[posinf & (np.asarray(codes) >= 0)])
-        shown = ", ".join(repr(_plain(labels[int(i)])) for i in hit[:5])
-        more = f" and {len(hit) - 5} more" if len(hit) > 5 else ""
-        grp = f" (in group(s) {shown}{more})" if len(hit) else ""
-    return (f"{where} holds {int(posinf.sum())} value(s) of +inf{grp}; logstats refuses +inf always "
-            "(replace it with NaN to have it skipped and counted as missing)")
+        groups = [_plain(labels[int(i)]) for i in hit]
+    return posinf_message(where, int(posinf.sum()), groups)
 
 
 def _undefined(policy: Policy, n_missing: Any, n_nonpositive: Any) -> tuple[np.ndarray, np.ndarray]:

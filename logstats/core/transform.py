@@ -182,22 +182,28 @@ def exp_values(values: Any, *, base: Any = "e", where: str = "the input") -> np.
         return np.power(b, y)
 
 
-def posinf_message(where: str, count: int) -> str:
-    """The refusal of ``+inf`` (``count`` values of it in ``where``)."""
+def _groups_phrase(groups: Sequence[Any] | None) -> str:
+    """`` (in group(s) 'a', 'b' and 3 more)`` for error messages; empty without groups."""
+    if not groups:
+        return ""
+    shown = ", ".join(repr(g) for g in list(groups)[:5])
+    more = f" and {len(groups) - 5} more" if len(groups) > 5 else ""
+    return f" (in group(s) {shown}{more})"
+
+
+def posinf_message(where: str, count: int, groups: Sequence[Any] | None = None) -> str:
+    """The refusal of ``+inf`` (``count`` values of it in ``where``, in ``groups``)."""
     return (
-        f"{where} holds {count} value(s) of +inf; logstats refuses +inf always "
+        f"{where} holds {count} value(s) of +inf{_groups_phrase(groups)}; logstats refuses +inf always "
         "(replace it with NaN to have it skipped and counted as missing)"
     )
 
 
 def nonpositive_message(where: str, count: int, groups: Sequence[Any] | None = None) -> str:
-    grp = ""
-    if groups:
-        shown = ", ".join(repr(g) for g in list(groups)[:5])
-        more = f" and {len(groups) - 5} more" if len(groups) > 5 else ""
-        grp = f" (in group(s) {shown}{more})"
+    """The refusal of zeros and negatives, naming the groups and the keywords that would handle them."""
     return (
-        f"{where} holds {count} value(s) at or below zero{grp}; their logarithm is undefined. "
+        f"{where} holds {count} value(s) at or below zero{_groups_phrase(groups)}; their logarithm is "
+        "undefined. "
         "Pass nonpositive='drop' to exclude and count them, nonpositive='nan' to make the affected "
         "results NaN, or detection_limit= if they are non-detects (values at or below a limit)"
     )
