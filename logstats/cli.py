@@ -442,6 +442,29 @@ def _check_numeric(df: pd.DataFrame, path: str, name: Hashable, option: str = "-
     )
 
 
+def _number_or_column(text: str | None, df: pd.DataFrame, path: str, option: str) -> Any:
+    """An option that takes a positive number or a numeric column (``--nd-limit``, ``--detection-limit``,
+    ``--limit``): None, the number, or the column's label as the table has it."""
+    if text is None:
+        return None
+    try:
+        value = float(text)
+    except ValueError:
+        _check_column(df, path, text, option)
+        _check_numeric(df, path, text, option)
+        return {str(c): c for c in df.columns}[text]
+    if not value > 0:
+        raise DataError(f"{path}: {option} {text} must be a positive number (in the data's units) or a "
+                        "column name")
+    return value
+
+
+def _nd_limit(text: str | None, df: pd.DataFrame, path: str) -> Any:
+    """``--nd-limit``: a number, or the column holding each row's limit (as a Series)."""
+    limit = _number_or_column(text, df, path, "--nd-limit")
+    return df[limit] if limit is not None and not isinstance(limit, float) else limit
+
+
 def _order_levels(df: pd.DataFrame, by: Hashable, reference: Any) -> tuple[pd.DataFrame, Any]:
     """Put the reference level first (a categorical key) and match it to the column's type."""
     from logstats.report import reference_first
@@ -462,21 +485,6 @@ def _readable_flag(entry: Any) -> int | None:
         return int(parse_censored(np.array([entry], dtype=object), nd_limit=1.0).flags[0])
     except (TypeError, ValueError):
         return None
-
-
-def _nd_limit(text: str | None, df: pd.DataFrame, path: str) -> Any:
-    """``--nd-limit``: a positive number, or a column holding each row's limit (as a Series)."""
-    if text is None:
-        return None
-    try:
-        value = float(text)
-    except ValueError:
-        _check_column(df, path, text, "--nd-limit")
-        _check_numeric(df, path, text, "--nd-limit")
-        return df[{str(c): c for c in df.columns}[text]]
-    if not value > 0:
-        raise DataError(f"{path}: --nd-limit {text} must be a positive number or a column name")
-    return value
 
 
 def _limit_column(df: pd.DataFrame, value: Hashable) -> str:
@@ -540,7 +548,7 @@ def _read_values(df: pd.DataFrame, args: argparse.Namespace, values: Sequence[Ha
     applies to the measured entries (a value at or below it is censored too). Said on standard error.
     """
     path = args.table
-    given = _detection_limit(getattr(args, "detection_limit", None), df, path)
+    given = _number_or_column(getattr(args, "detection_limit", None), df, path, "--detection-limit")
     nd = _nd_limit(getattr(args, "nd_limit", None), df, path)
     out = df
     limits: dict[Hashable, Any] = {}
@@ -569,20 +577,6 @@ def _read_values(df: pd.DataFrame, args: argparse.Namespace, values: Sequence[Ha
                         + ". Nothing is substituted: the statistics use the censored likelihood")
         limits[v] = col if n_cens or given is not None else None
     return out, limits
-
-
-def _detection_limit(text: str | None, df: pd.DataFrame, path: str) -> Any:
-    if text is None:
-        return None
-    try:
-        value = float(text)
-    except ValueError:
-        _check_column(df, path, text, "--detection-limit")
-        _check_numeric(df, path, text, "--detection-limit")
-        return text
-    if not value > 0:
-        raise DataError(f"{path}: --detection-limit {text} must be a positive number or a column name")
-    return value
 
 
 # --------------------------------------------------------------------------------------------------
@@ -1016,24 +1010,10 @@ def _cmd_check(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-def _parse_limit(text: str | None, df: pd.DataFrame, path: str) -> Any:
-    if text is None:
-        return None
-    try:
-        value = float(text)
-    except ValueError:
-        _check_column(df, path, text, "--limit")
-        _check_numeric(df, path, text, "--limit")
-        return {str(c): c for c in df.columns}[text]
-    if not value > 0:
-        raise DataError(f"{path}: --limit {text} must be a positive number (in the data's units) or a column")
-    return value
-
-
 def _cmd_tail(args: argparse.Namespace) -> int:
     df, values, keys = _load(args)
     df = in_data_order(df, keys)
-    limit = _parse_limit(args.limit, df, args.table)
+    limit = _number_or_column(args.limit, df, args.table, "--limit")
     qs = args.q or [0.95]
     for q in qs:
         if not 0.0 < q < 1.0:
@@ -1194,7 +1174,7 @@ def _cmd_report(args: argparse.Namespace) -> int:
     if any(repr(x) != repr(specs[0]) for x in specs):
         raise DataError(f"{args.table}: the value columns have different detection limits; make one report "
                         "per --value")
-    limit = _parse_limit(args.limit, df, args.table)
+    limit = _number_or_column(args.limit, df, args.table, "--limit")
     from logstats.report import build_report
 
     build_report(df, value=_one_or_many(values), by=_by(keys), replicate=args.replicate, reference=ref,
