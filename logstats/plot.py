@@ -1185,7 +1185,9 @@ def scale(
         prof.set_ylim(bottom, 0.6 * cut)
         handles, _ = prof.get_legend_handles_labels()
         if handles:
-            prof.legend(fontsize="x-small", frameon=False, loc="lower center")
+            # below the panel, so the key never covers a curve
+            prof.legend(fontsize="x-small", frameon=False, loc="upper center", bbox_to_anchor=(0.5, -0.16),
+                        ncols=2 if len(handles) > 3 else 1)
     prof.set_xscale("linear")
     prof.set_xlabel("Box-Cox power λ")
     prof.set_ylabel("profile log-likelihood − maximum")
