@@ -12,8 +12,8 @@ import numpy as np
 from scipy import stats
 
 from logstats.core.moments import LogMoments
-from logstats.core.transform import to_logs
-from logstats.stats._common import group_value_order
+from logstats.core.transform import as_float_array, to_logs
+from logstats.stats._common import padded_blocks
 
 __all__ = [
     "ci_gmean",
@@ -136,43 +136,48 @@ def linear_fields(values: np.ndarray, codes: np.ndarray, ngroups: int, *, ddof: 
     """Linear-scale ``median``, ``mean`` and ``sd`` (``ddof``, default 1) of the values the log
     statistics use (positive, finite), per group.
 
-    Vectorised: one sort by (group, value) gives every group's median; mean and SD are taken
+    Vectorised: each group's values are a row of a padded block (:func:`padded_blocks`, centred),
+    and one ``np.partition`` of the block gives every group's median (no sort); mean and SD are taken
     on values scaled by their group's maximum, so inputs near 1e300 do not overflow.
     """
-    lv = to_logs(values, where=where)
-    x = np.where(lv.valid, np.asarray(values, dtype=np.float64), np.nan)
-    keep = lv.valid & (codes >= 0)
-    xs, cs = x[keep], np.asarray(codes)[keep]
-    n = np.bincount(cs, minlength=ngroups).astype(np.float64)
-    order = group_value_order(xs, cs, ngroups)
-    xs_sorted, cs_sorted = xs[order], cs[order]
-    start = np.concatenate([[0], np.cumsum(n)[:-1]]).astype(np.intp)
-    lo = start + np.maximum((n.astype(np.intp) - 1) // 2, 0)
-    hi = start + np.maximum(n.astype(np.intp) // 2, 0)
-    has = n > 0
+    x = as_float_array(values, where=where)
+    c = np.asarray(codes)
+    if np.isfinite(x).all() and bool((x > 0).all()):  # what the engine passes: every value usable
+        missing = nonpositive_rows = None
+        keep = c >= 0
+        xs, cs = (x, c) if keep.all() else (x[keep], c[keep])
+    else:
+        lv = to_logs(x, where=where)
+        missing, nonpositive_rows = lv.missing, lv.nonpositive
+        keep = lv.valid & (c >= 0)
+        xs, cs = x[keep], c[keep]
+    median = np.full(ngroups, np.nan)
+    mean = np.full(ngroups, np.nan)
+    sd = np.full(ngroups, np.nan)
     with np.errstate(invalid="ignore", divide="ignore"):
-        safe_lo = np.where(has, lo, 0)
-        safe_hi = np.where(has, hi, 0)
-        if xs_sorted.size:
-            median = np.where(has, 0.5 * xs_sorted[safe_lo] + 0.5 * xs_sorted[safe_hi], np.nan)
-            scale = np.where(has, xs_sorted[np.where(has, start + n.astype(np.intp) - 1, 0)], np.nan)
-        else:
-            median = np.full(ngroups, np.nan)
-            scale = np.full(ngroups, np.nan)
-        z = xs_sorted / scale[cs_sorted]
-        mz = np.bincount(cs_sorted, weights=z, minlength=ngroups) / n
-        dz = z - mz[cs_sorted]
-        corr = np.bincount(cs_sorted, weights=dz, minlength=ngroups)
-        ssz = np.bincount(cs_sorted, weights=dz * dz, minlength=ngroups) - corr * corr / n
-        mz = mz + corr / n
-        dof = n - ddof
-        sdz = np.where(dof > 0, np.sqrt(np.maximum(ssz, 0.0) / np.where(dof > 0, dof, 1.0)), np.nan)
-        mean = mz * scale
-        sd = sdz * scale
+        for groups, sizes, block, inside, _ in padded_blocks(xs, cs, ngroups, centred=True):
+            scale = np.max(block, axis=1, where=inside, initial=-np.inf)  # the group's largest value
+            nf = sizes.astype(np.float64)
+            z = block / scale[:, None]  # <= 1: no overflow near 1e300; +-inf in the padding
+            mz = z.sum(axis=1, where=inside) / nf
+            z -= mz[:, None]
+            corr = z.sum(axis=1, where=inside)  # the correction term of the two-pass algorithm
+            np.square(z, out=z)
+            ssz = z.sum(axis=1, where=inside) - corr * corr / nf
+            mz = mz + corr / nf
+            dof = nf - ddof
+            sdz = np.where(dof > 0, np.sqrt(np.maximum(ssz, 0.0) / np.where(dof > 0, dof, 1.0)), np.nan)
+            mean[groups] = mz * scale
+            sd[groups] = sdz * scale
+            mid = (block.shape[1] - 1) // 2  # every row's lower median sits in this column
+            block.partition(mid, axis=1)
+            low = block[:, mid]
+            high = np.where(sizes % 2 == 0, np.min(block[:, mid + 1:], axis=1, initial=np.inf), low)
+            median[groups] = 0.5 * low + 0.5 * high
     bad = np.zeros(ngroups, dtype=bool)
-    if not skipna:
-        bad |= np.bincount(np.asarray(codes)[lv.missing & (codes >= 0)], minlength=ngroups) > 0
-    if nonpositive == "nan":
-        bad |= np.bincount(np.asarray(codes)[lv.nonpositive & (codes >= 0)], minlength=ngroups) > 0
+    if not skipna and missing is not None:
+        bad |= np.bincount(c[missing & (c >= 0)], minlength=ngroups) > 0
+    if nonpositive == "nan" and nonpositive_rows is not None:
+        bad |= np.bincount(c[nonpositive_rows & (c >= 0)], minlength=ngroups) > 0
     out = {"median": median, "mean": mean, "sd": sd}
     return {k: np.where(bad, np.nan, v) for k, v in out.items()}

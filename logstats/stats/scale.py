@@ -25,7 +25,7 @@ from logstats.stats._common import (
     _detection_limits,
     _group_codes,
     _values_1d,
-    group_value_order,
+    group_sorted_values,
 )
 from logstats.stats.censored import _censored_newton, fit_lognormal
 from logstats.stats.normality import (
@@ -274,8 +274,8 @@ def _sorted_groups(x: np.ndarray, codes: np.ndarray, G: int) -> dict[str, Any]:
     n = np.asarray(mom.n, dtype=np.int64)
     nf = n.astype(np.float64)
     use = np.flatnonzero(lv.valid & (codes >= 0))
-    order = use[group_value_order(x[use], codes[use], G)]
-    xs, ys, gs = x[order], lv.y[order], codes[order]
+    xs, gs = group_sorted_values(x[use], codes[use], G)
+    ys = np.log(xs)  # the same logs as lv.y, in sorted order
     starts = np.zeros(G, dtype=np.intp)
     np.cumsum(n[:-1], out=starts[1:])
     has = n > 0
