@@ -417,6 +417,17 @@ def _frame(size: tuple[int, int]) -> pd.DataFrame:
     return method_frame(*size)
 
 
+def _shuffled(size: tuple[int, int]) -> pd.DataFrame:
+    """``method_frame`` with its rows in random order (tables are not always sorted by group)."""
+    df = method_frame(*size)
+    return df.iloc[np.random.default_rng(5).permutation(len(df))].reset_index(drop=True)
+
+
+def _ref_shapiro_loop(df: pd.DataFrame) -> pd.DataFrame:
+    return _per_group(df, lambda v: {"normality_p_linear": stats.shapiro(v).pvalue,
+                                     "normality_p_log": stats.shapiro(np.log(v)).pvalue})
+
+
 def _single(col: str) -> Callable[[Any], Any]:
     return lambda res: res.rename(columns={"x": col})
 
@@ -466,6 +477,11 @@ CASES: tuple[Case, ...] = (
          (_r("idiom", _ref_linear, "n gmean gsd median mean sd",
              "groupby.agg([median, mean, std]) + the log idiom"),),
          ours_text='summary(by="g", linear=True)'),
+    Case("summary linear=True unsorted", "summary", _shuffled, {"quick": (20, 500), "full": (1_000, 1_000)},
+         lambda df: df.logstats.summary(by="g", columns="x", linear=True),
+         (_r("idiom", _ref_linear, "n gmean gsd median mean sd",
+             "groupby.agg([median, mean, std]) + the log idiom"),),
+         ours_text='summary(by="g", linear=True), rows in random order'),
     Case("fit", "fit", _frame, {"quick": (200, 50), "full": (2_000, 100)},
          lambda df: df.logstats.fit(by="g", columns="x"),
          (_r("scipy per group", _ref_fit_scipy, "mu sigma", "scipy.stats.lognorm.fit(v, floc=0) per group"),),
@@ -510,6 +526,16 @@ CASES: tuple[Case, ...] = (
              "aic_lognormal",
              "scipy.stats.boxcox(x, alpha=0.05) + shapiro(x), shapiro(ln x) + AICs per group"),),
          absolute=("boxcox_lambda", "boxcox_ci_low", "boxcox_ci_high"), ours_text='scale_check(by="g")'),
+    Case("scale_check unsorted", "scale_check", _shuffled, {"quick": (5, 400), "full": (100, 4_000)},
+         lambda df: df.logstats.scale_check(by="g", columns="x"),
+         (_r("scipy per group", _ref_scale_loop,
+             "boxcox_lambda boxcox_ci_low boxcox_ci_high normality_p_linear normality_p_log aic_normal "
+             "aic_lognormal",
+             "scipy.stats.boxcox(x, alpha=0.05) + shapiro(x), shapiro(ln x) + AICs per group"),
+          _r("shapiro only", _ref_shapiro_loop, "normality_p_linear normality_p_log",
+             "scipy.stats.shapiro(x), shapiro(ln x) per group (no Box-Cox, no AIC)")),
+         absolute=("boxcox_lambda", "boxcox_ci_low", "boxcox_ci_high"),
+         ours_text='scale_check(by="g"), rows in random order'),
     Case("scale_check pooled=True", "scale_check", _frame, {"quick": (40, 50), "full": (1_000, 100)},
          lambda df: df.logstats.scale_check(by="g", columns="x", pooled=True),
          (_r("statsmodels", _ref_scale_pooled,

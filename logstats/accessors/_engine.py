@@ -212,7 +212,7 @@ def _lazy_moments(method: Method, data: Any, *, nred: int, codes: np.ndarray | N
                   labels: Sequence[Any] | None) -> dict[str, Any]:
     from logstats.accessors.dask import dask_stacked_moments
 
-    st = dask_stacked_moments(data, nred=nred, codes=codes, ngroups=ngroups, where=where)
+    st = dask_stacked_moments(data, nred=nred, codes=codes, ngroups=ngroups, where=where, labels=labels)
     if method.dask == "whole":
         st = st.rechunk(-1)  # the merged moments: small, one value set per group
     names = method.field_names
@@ -416,6 +416,8 @@ def compare(values: np.ndarray, level_codes: np.ndarray, n_levels: int, referenc
     """Fold changes of every level against ``reference`` for all strata at once, with the shared
     policy; every field has shape ``(n_strata, n_levels)``, the reference column included."""
     md = METHODS["fold_change"]
+    _check_compare_options(params)
+    _refuse_posinf(values, level_codes, labels, where)
     kw = {**{k: v for k, v in params.items() if k not in ("replicate", "within")},
           "nonpositive": policy.kernel_nonpositive, "skipna": policy.skipna}
     if policy.censoring:
@@ -438,6 +440,7 @@ def compare(values: np.ndarray, level_codes: np.ndarray, n_levels: int, referenc
         else:
             res = censored_fold_change(values, level_codes, n_levels, reference, detection_limit=lim,
                                        stratum_codes=stratum_codes, n_strata=n_strata, **keep)
+        res = _reference_counts(res, reference)
     else:
         res = kernel(md.kernel)(values, level_codes, n_levels, reference, stratum_codes=stratum_codes,
                                 n_strata=n_strata, replicate_codes=replicate_codes,
@@ -454,6 +457,8 @@ def compare_nested(values: np.ndarray, level_codes: np.ndarray, n_levels: int, r
     the shared policy; shapes ``(n_strata, n_levels)``."""
     from logstats.stats.nested import nested_fold_change
 
+    _check_compare_options(params)
+    _refuse_posinf(values, level_codes, labels, where)
     if policy.censoring:
         raise ValueError("detection_limit= in fold_change does not combine with nested replicate= yet")
     res = nested_fold_change(values, level_codes, n_levels, reference, nested_codes=list(nested),
@@ -471,12 +476,47 @@ def compare_from_moments(m: LogMoments, stratum_level: np.ndarray, n_levels: int
     ``stratum_level`` is each row's flat index ``stratum * n_levels + level``."""
     from logstats.stats.compare import fold_change_moments
 
+    _check_compare_options(params)
     if policy.censoring:
         raise ValueError("detection_limit= in fold_change needs the values: compute the dask DataFrame "
                          "first (the censored regression cannot be merged from moments)")
     res = fold_change_moments(m, stratum_level, n_levels, reference, nonpositive=policy.kernel_nonpositive,
                               skipna=policy.skipna, **params, **layout)
     raise_for_counts(res["n_nonpositive"], policy=policy, where=where, labels=labels)
+    return res
+
+
+def _check_compare_options(params: dict[str, Any]) -> None:
+    """Option type errors name the option (``paired="yes"`` is not silently true)."""
+    for key in ("paired", "equal_var"):
+        if key in params and not isinstance(params[key], (bool, np.bool_)):
+            raise TypeError(f"fold_change(): {key}= must be True or False; got {params[key]!r}")
+    level = params.get("confidence_level", 0.95)
+    if not isinstance(level, (int, float, np.integer, np.floating)) or isinstance(level, (bool, np.bool_)):
+        raise TypeError(f"fold_change(): confidence_level= must be a number; got {level!r}")
+
+
+def _refuse_posinf(values: np.ndarray, level_codes: np.ndarray, labels: Sequence[Any] | None,
+                   where: str) -> None:
+    """``+inf`` is refused before any kernel runs, naming the levels that hold it (as every method)."""
+    x = np.asarray(values)
+    if x.dtype.kind != "f":
+        return
+    posinf = np.isposinf(x).reshape(-1)
+    if posinf.any():
+        codes = np.broadcast_to(np.asarray(level_codes), x.shape).reshape(-1)
+        raise ValueError(inf_message(where, posinf, codes, labels))
+
+
+def _reference_counts(res: dict[str, np.ndarray], reference: int) -> dict[str, np.ndarray]:
+    """The reference level's own counts of values left out, beside each level's (every fold-change
+    kernel reports them, so every unit is counted somewhere; the censored kernel reports per level only)."""
+    res = dict(res)
+    for name in ("n_missing", "n_nonpositive"):
+        ref_name = f"{name}_reference"
+        if name in res and ref_name not in res:
+            v = np.asarray(res[name])
+            res[ref_name] = np.broadcast_to(v[..., reference : reference + 1], v.shape).copy()
     return res
 
 

@@ -12,8 +12,8 @@ import pandas as pd
 
 from logstats.core.transform import LogstatsWarning
 
-__all__ = ["Groups", "column_values", "factorize_keys", "is_label_of", "resolve_keys", "resolve_limit",
-           "value_columns", "value_items"]
+__all__ = ["Groups", "column_values", "factorize_keys", "is_label_of", "is_limit_label", "resolve_keys",
+           "resolve_limit", "value_columns", "value_items"]
 
 
 @dataclass(frozen=True)
@@ -29,36 +29,67 @@ class Groups:
         return self.index.tolist()  # the same Python scalars / tuples as list(index), faster
 
 
-def resolve_keys(obj: pd.DataFrame | pd.Series, by: Any) -> list[pd.Series]:
-    """``by`` as a list of key Series aligned to ``obj`` (column names, index level names, Series, arrays)."""
+def resolve_keys(obj: pd.DataFrame | pd.Series, by: Any, keyword: str = "by") -> list[pd.Series]:
+    """``by`` as a list of key Series aligned to ``obj`` (column names, index level names, Series, arrays).
+
+    ``keyword`` names the argument in messages. For ``by=`` a Series with another index is aligned on
+    the index as pandas groupby does (rows it lacks have no key: warned and counted); for any other
+    keyword (``replicate=``, ``within=``: arguments aligned like the data) a Series must hold a label
+    for every row of the data, else a ValueError names the keyword and how many rows lack one.
+    """
     items = by if isinstance(by, list) else [by]
     if not items:
-        raise ValueError("by= is an empty list; pass a column name, a list of names, or an aligned Series")
+        raise ValueError(f"{keyword}= is an empty list; pass a column name, a list of names, or an aligned "
+                         "Series")
     keys: list[pd.Series] = []
     for item in items:
         if isinstance(item, pd.Series):
             key = item
             if not key.index.equals(obj.index):
                 if len(key) == len(obj) and not key.index.is_unique:
-                    raise ValueError(f"by= Series {key.name!r} has an index that does not match the data's")
+                    raise ValueError(f"{keyword}= Series {key.name!r} has an index that does not match the "
+                                     "data's")
+                if keyword != "by":
+                    _check_covers(key.index, obj.index, keyword)
                 key = key.reindex(obj.index)
             keys.append(key)
         elif isinstance(item, (np.ndarray, pd.Index, pd.Categorical)):
             if len(item) != len(obj):
-                raise ValueError(f"by= array has length {len(item)}, the data has {len(obj)} rows")
+                raise ValueError(f"{keyword}= array has length {len(item)}, the data has {len(obj)} rows")
             keys.append(pd.Series(item, index=obj.index, name=getattr(item, "name", None)))
-        elif isinstance(obj, pd.DataFrame) and item in obj.columns:
+        elif isinstance(obj, pd.DataFrame) and is_label_of(obj, item):
             col = obj[item]
             if isinstance(col, pd.DataFrame):
-                raise ValueError(f"by={item!r} names {col.shape[1]} columns (the label is duplicated); "
-                                 "rename them or pass the key as a Series")
+                raise ValueError(f"{keyword}={item!r} names {col.shape[1]} columns (the label is "
+                                 "duplicated); rename them or pass the key as a Series")
             keys.append(col)
-        elif item in (obj.index.names or []) and item is not None:
+        elif _is_level_name(obj, item):
             keys.append(pd.Series(obj.index.get_level_values(item), index=obj.index, name=item))
         else:
             where = list(obj.columns) if isinstance(obj, pd.DataFrame) else list(obj.index.names)
-            raise KeyError(f"by={item!r} is not a column or index level; there are {where!r}")
+            raise KeyError(f"{keyword}={item!r} is not a column or index level; there are {where!r}")
     return keys
+
+
+def _is_level_name(obj: pd.DataFrame | pd.Series, item: Any) -> bool:
+    if item is None:
+        return False
+    try:
+        return item in (obj.index.names or [])
+    except TypeError:  # unhashable
+        return False
+
+
+def _check_covers(given: pd.Index, data: pd.Index, keyword: str) -> None:
+    """An aligned argument (a Series) must have a label for every row of the data (a permutation or a
+    superset of the data's index is aligned silently, as pandas would)."""
+    lacking = int((~data.isin(given)).sum())
+    if lacking:
+        raise ValueError(
+            f"{keyword}= Series is not aligned with the data: {lacking} of {len(data)} row(s) have no entry "
+            f"in its index; pass one Series per row of the data (or a plain array of {len(data)} values), "
+            f"or .reindex(data.index) it yourself to mean 'no value' there"
+        )
 
 
 def _int_codes(key: pd.Series, sort: bool) -> tuple[np.ndarray, pd.Index] | None:
@@ -306,17 +337,27 @@ def is_label_of(df: pd.DataFrame, key: Any) -> bool:
         return False
 
 
+def is_limit_label(df: pd.DataFrame, value: Any) -> bool:
+    """True when a limit keyword names a column. A float is always a number: ``detection_limit=1.0``
+    on a table read with ``header=None`` must not become column ``1`` (``1.0 == 1`` in a label lookup),
+    which would silently censor the values at themselves; integers and text are labels first."""
+    if isinstance(value, (float, np.floating)):
+        return False
+    return is_label_of(df, value)
+
+
 def resolve_limit(df: pd.DataFrame, detection_limit: Any, keyword: str = "detection_limit") -> Any:
     """``detection_limit=`` as None, one number, or float64 per-row limits aligned with ``df``.
 
-    A column label of ``df`` takes precedence (labels may be numbers); then a real number; then a
-    Series, aligned on the index like pandas (a label the data has but the Series lacks gives NaN,
-    i.e. not censored; an index that cannot be aligned is an error); then an array of the data's
-    length. Anything else is a TypeError naming the keyword.
+    A column label of ``df`` takes precedence (labels may be integers; a float is always a number:
+    :func:`is_limit_label`); then a real number; then a
+    Series, aligned on the index like pandas (in another order, or with extra labels); a Series
+    lacking a label of the data is an error naming the keyword (a NaN entry means "no limit": reindex it
+    yourself to say so); then an array of the data's length. Anything else is a TypeError naming the keyword.
     """
     if detection_limit is None:
         return None
-    if is_label_of(df, detection_limit):
+    if is_limit_label(df, detection_limit):
         return column_values(df[detection_limit], detection_limit)
     if isinstance(detection_limit, (int, float, np.integer, np.floating)) and not isinstance(
             detection_limit, (bool, np.bool_)):
@@ -327,6 +368,7 @@ def resolve_limit(df: pd.DataFrame, detection_limit: Any, keyword: str = "detect
             if not s.index.is_unique:
                 raise ValueError(f"{keyword}= Series has a duplicated index that does not match the "
                                  "data's; pass one aligned on the data's index (or a plain array)")
+            _check_covers(s.index, df.index, keyword)
             s = s.reindex(df.index)
         return column_values(s, keyword)
     if isinstance(detection_limit, (np.ndarray, list, tuple, pd.Index)):

@@ -24,6 +24,7 @@ def _prepare(x: Any, axis: Any) -> tuple[Any, int]:
     """Move the reduced axes last (a view for numpy, lazy for dask); 0-d input becomes 1-d."""
     if not is_dask(x):
         x = np.asarray(x)
+        _refuse_text(x)
     if x.ndim == 0:
         x = x.reshape(1)
     axes = tuple(range(x.ndim)) if axis is None else normalize_axes(axis, x.ndim)
@@ -31,12 +32,34 @@ def _prepare(x: Any, axis: Any) -> tuple[Any, int]:
     return x.transpose(keep + list(axes)), len(axes)
 
 
+def _refuse_text(x: np.ndarray) -> None:
+    """Text is refused, never parsed (as for table columns): numbers written as strings are converted
+    explicitly by the caller (``pd.to_numeric``, ``.astype(float)``)."""
+    if x.dtype.kind in "US" or (x.dtype == object and any(isinstance(v, (str, bytes)) for v in x.flat)):
+        raise TypeError("the input holds text; logstats needs positive real numbers. Convert it explicitly "
+                        "(pd.to_numeric, or np.asarray(x, dtype=float)); entries such as '<0.5' are "
+                        "non-detects for logstats.split_censored")
+
+
+def _aligned(value: Any, x: Any, keyword: str) -> np.ndarray:
+    """A per-value argument laid out like ``x`` (numpy broadcasting), or a ValueError naming it."""
+    arr = np.asarray(value, dtype=np.float64)
+    try:
+        return np.broadcast_to(arr, np.shape(x))
+    except ValueError:
+        raise ValueError(f"{keyword}= has shape {arr.shape}, which does not broadcast to the data's "
+                         f"{np.shape(x)}; pass a number or an array of the data's shape") from None
+
+
 def _run(name: str, x: Any, axis: Any, *, skipna: bool = True, nonpositive: str = "raise",
          detection_limit: Any = None, **params: Any) -> dict[str, Any]:
     data, nred = _prepare(x, axis)
     limit = detection_limit
     if limit is not None and np.ndim(limit) > 0:
-        limit, _ = _prepare(np.broadcast_to(np.asarray(limit, dtype=np.float64), np.shape(x)), axis)
+        limit, _ = _prepare(_aligned(limit, x, "detection_limit"), axis)
+    for key in ("limit",):  # per-value keywords of a method (exceedance): checked the same way
+        if params.get(key) is not None and np.ndim(params[key]) > 0:
+            params[key], _ = _prepare(_aligned(params[key], x, key), axis)
     policy = Policy(skipna=skipna, nonpositive=nonpositive, detection_limit=limit)
     return compute(name, data, nred=nred, policy=policy, params=params, where="the input")
 

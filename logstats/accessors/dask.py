@@ -27,8 +27,18 @@ def _block_moments(block: np.ndarray, *, nred: int, where: str) -> np.ndarray:
     return st.reshape(block.shape[: block.ndim - nred] + (1,) * nred + (_NF,))
 
 
-def _block_moments_codes(block: np.ndarray, codes: np.ndarray, *, ngroups: int, where: str) -> np.ndarray:
-    st = moments_by_codes(block, codes.reshape(-1), ngroups, where=where).stack()
+def _block_moments_codes(block: np.ndarray, codes: np.ndarray, *, ngroups: int, where: str,
+                         labels: Any = None) -> np.ndarray:
+    try:
+        st = moments_by_codes(block, codes.reshape(-1), ngroups, where=where).stack()
+    except ValueError as exc:  # +inf: say in which groups, as the in-memory path does
+        if "+inf" not in str(exc) or labels is None:
+            raise
+        from logstats.accessors._engine import inf_message
+
+        hit = np.isposinf(np.asarray(block, dtype=np.float64))
+        per_value = np.asarray(hit.reshape(-1, hit.shape[-1]).any(axis=0))
+        raise ValueError(inf_message(where, per_value, codes.reshape(-1), labels)) from None
     return st.reshape(block.shape[:-1] + (1, ngroups, _NF))
 
 
@@ -42,7 +52,9 @@ def _merge(block: np.ndarray, axis: Any = None, keepdims: bool = True, **_: Any)
 
 
 def dask_stacked_moments(data: Any, *, nred: int, codes: np.ndarray | None, ngroups: int | None,
-                         where: str) -> Any:
+                         where: str, labels: Any = None) -> Any:
+    """Per-block log-moments merged in a tree. ``labels`` (the group labels, in code order) let a
+    refusal of ``+inf`` name the groups that hold it."""
     import dask.array as da
 
     nd = data.ndim
@@ -71,6 +83,7 @@ def dask_stacked_moments(data: Any, *, nred: int, codes: np.ndarray | None, ngro
             codes_da,
             ngroups=g,
             where=where,
+            labels=list(labels) if labels is not None else None,
             chunks=lead_chunks + ((1,) * len(data.chunks[-1]), (g,), (_NF,)),
             new_axis=[nd, nd + 1],
             dtype=np.float64,
@@ -188,6 +201,22 @@ def _partition_moments(part: Any, *, by: list[Any] | None, columns: list[Any], o
     return table, n_unkeyed
 
 
+def _rows_of(table: Any, col: Any) -> Any:
+    """The rows of value column ``col`` in a moment table whose last index level holds the columns,
+    without that level. By position and level code, never by name: a key may itself be called
+    ``variable``, and a label may be a tuple or a number."""
+    idx = table.index
+    level = idx.levels[-1]
+    hit = [i for i, v in enumerate(level) if isinstance(v, tuple) == isinstance(col, tuple) and v == col]
+    mask = np.isin(idx.codes[-1], hit)
+    sub = table[mask]
+    return sub.set_axis(sub.index.droplevel(-1), axis=0)
+
+
+def _identity(obj: Any) -> Any:
+    return obj
+
+
 def _merge_partitions(*parts: tuple[Any, int]) -> tuple[Any, int]:
     """Merge moment tables exactly (``logstats.combine_moments``: aligned on the group index)."""
     from logstats.accessors.arrays import combine_moments
@@ -245,8 +274,7 @@ def _finish(merged: tuple[Any, int], req: _Request) -> Any:
         else:
             sub = table
             if several:  # this column's rows, without the ``variable`` level (also when empty)
-                sub = table[table.index.get_level_values("variable") == col]
-                sub = sub.set_axis(sub.index.droplevel("variable"), axis=0)
+                sub = _rows_of(table, col)
             if req.sort:
                 sub = sub.sort_index()
             index = sub.index
@@ -268,9 +296,11 @@ def _finish(merged: tuple[Any, int], req: _Request) -> Any:
         shaper: Any = LogstatsSeriesAccessor(pd.Series([], dtype=np.float64, name=req.series_name))
     else:
         shaper = LogstatsFrameAccessor(pd.DataFrame())
-    if md.shape == "single":
-        return shaper._single_shape(req.kind, results, groups)
-    return shaper._tidy(results, groups)
+    res = shaper._single_shape(req.kind, results, groups) if md.shape == "single" else \
+        shaper._tidy(results, groups)
+    if groups is not None and hasattr(res, "attrs"):
+        res.attrs["n_without_key"] = n_unkeyed  # rows left out for a missing key, as in pandas
+    return res
 
 
 def _lazy_reduce(ddf: Any, kind: str, by: Any, columns: Any, *, key_names: list[Any] | None,
@@ -288,12 +318,20 @@ def _lazy_reduce(ddf: Any, kind: str, by: Any, columns: Any, *, key_names: list[
     keys = None
     if by is not None:
         items = by if isinstance(by, list) else [by]
-        for item in items:
-            if not isinstance(item, str) and not np.isscalar(item):
-                raise TypeError(f"by= on a dask DataFrame takes column names, not {type(item).__name__}")
+        for item in items:  # labels of any hashable type (a tuple is one MultiIndex column label)
+            if not isinstance(item, (str, tuple)) and not np.isscalar(item):
+                raise TypeError(f"by= on a dask DataFrame takes column names (labels), not "
+                                f"{type(item).__name__}")
         resolve_keys(meta, items)  # a KeyError naming the columns, before anything is built
         keys = items
     cols = value_columns(meta, columns, exclude=keys or [])
+    if not cols:  # columns=[]: nothing to reduce; the pandas accessor's empty result, lazily
+        import dask.dataframe as dd
+
+        empty = getattr(meta.logstats, kind)(by=keys, columns=[], **(params or {}))
+        if np.isscalar(empty):
+            return empty
+        return dd.from_delayed([delayed(_identity, pure=True)(empty)], meta=empty, verify_meta=False)
     req = _Request(kind, by=keys, key_names=key_names or keys, columns=cols, series_name=series_name,
                    is_series=is_series, skipna=skipna, nonpositive=nonpositive, sort=sort, params=params)
     part_kw: dict[str, Any] = {"by": keys, "columns": cols, "observed": observed, "dropna": dropna}
@@ -344,8 +382,7 @@ def _fold_finish(merged: tuple[Any, int], req: _FoldRequest) -> Any:
     def column_table(col: Any) -> Any:
         if not several:
             return table
-        sub = table[table.index.get_level_values("variable") == col]
-        return sub.set_axis(sub.index.droplevel("variable"), axis=0)
+        return _rows_of(table, col)
 
     def key_values(idx: Any, name: Any) -> Any:
         return idx.get_level_values(name) if isinstance(idx, pd.MultiIndex) else idx
@@ -410,6 +447,11 @@ class _DaskFrameBase(FigureMethods):
 
         md = METHODS[name]
         limit = args.get("detection_limit")
+        for key in ("detection_limit",) + md.row_params:
+            if key in args and type(args[key]).__module__.startswith("dask"):
+                raise TypeError(f"{name}(): {key}= on a dask DataFrame takes a number or a column label "
+                                f"(or a pandas Series / array aligned with the computed frame), not a "
+                                f"{type(args[key]).__name__}; assign it as a column first")
         params = {p.name: args[p.name] for p in md.params if p.name != "detection_limit"}
         listed = md.expand is not None and isinstance(params.get(md.expand), (list, tuple, np.ndarray))
         lazy_ok = (md.reduction == "moments" and limit is None and not params.get("linear") and not listed
@@ -434,7 +476,8 @@ class _DaskFrameBase(FigureMethods):
         args = dict(args)
         args.pop("split_every", None)
         frame, accessor = self._pandas_call()
-        template = _template(lambda pdf: _call_pandas(accessor, pdf, name, args), frame)
+        shape_args = _without_row_arrays(name, args)
+        template = _template(lambda pdf: _call_pandas(accessor, pdf, name, shape_args), frame)
         result = delayed(_load_and_call, pure=True)(accessor, name, args, *frame.to_delayed())
         if template is None or np.isscalar(template):
             return result
@@ -482,6 +525,22 @@ def _load_and_call(accessor: Any, name: str, args: dict[str, Any], *parts: Any) 
 
     pdf = pd.concat(parts) if len(parts) != 1 else parts[0]
     return _call_pandas(accessor, pdf, name, args)
+
+
+def _without_row_arrays(name: str, args: dict[str, Any]) -> dict[str, Any]:
+    """The call's arguments for the empty template: a per-row argument (``detection_limit=`` or a
+    method's row keywords given as an array or Series) becomes one number of the same meaning, since
+    the template frame has none of the data's rows; its length is checked against the real rows when
+    the result is computed (the error then names the keyword and the true row count)."""
+    from logstats.methods import METHODS
+
+    rowwise = ("detection_limit",) + METHODS[name].row_params
+    out = dict(args)
+    for key in rowwise:
+        v = out.get(key)
+        if v is not None and not np.isscalar(v) and hasattr(v, "__len__"):
+            out[key] = 1.0
+    return out
 
 
 def _template(fn: Any, frame: Any) -> Any:
@@ -573,9 +632,24 @@ class LogstatsDaskFrameAccessor(_DaskFrameBase):
         if paired and replicate is None:
             raise ValueError("paired=True needs replicate= (the label shared by paired replicates)")
         within_list = [] if within is None else (within if isinstance(within, list) else [within])
+        for keyword, items in (("by", [by]), ("within", within_list),
+                               ("replicate", [] if replicate is None else
+                                replicate if isinstance(replicate, list) else [replicate])):
+            for item in items:
+                if not isinstance(item, str) and not np.isscalar(item) and not isinstance(item, tuple):
+                    raise TypeError(f"{keyword}= on a dask DataFrame takes column labels, not "
+                                    f"{type(item).__name__} (compute() the frame to pass aligned arrays)")
+        if isinstance(replicate, list) and len(replicate) > 1:
+            raise ValueError("replicate= with nested levels on a dask DataFrame is not supported; compute() "
+                             "the frame first (the nested means need every value of a replicate)")
+        if isinstance(replicate, list):
+            replicate = replicate[0]
         keys = within_list + [by] + ([replicate] if replicate is not None else [])
         meta = self._obj._meta
-        resolve_keys(meta, keys)  # a KeyError naming the column, before anything is built
+        for keyword, items in (("by", [by]), ("within", within_list),
+                               ("replicate", [] if replicate is None else [replicate])):
+            if items:
+                resolve_keys(meta, items, keyword=keyword)  # a KeyError naming the keyword and column
         cols = value_columns(meta, columns, exclude=keys)
         req = _FoldRequest(by=by, reference=reference, replicate=replicate, within=within_list, columns=cols,
                            options=dict(paired=paired, equal_var=equal_var, confidence_level=confidence_level,
@@ -643,7 +717,8 @@ class LogstatsDaskSeriesAccessor(_DaskFrameBase):
         from dask import delayed
 
         call_args.pop("split_every", None)
-        template = _template(lambda pdf: _call_pandas(accessor, pdf, name, call_args), frame)
+        shape_args = _without_row_arrays(name, call_args)
+        template = _template(lambda pdf: _call_pandas(accessor, pdf, name, shape_args), frame)
         result = delayed(_load_and_call, pure=True)(accessor, name, call_args, *frame.to_delayed())
         if template is None or np.isscalar(template):
             return result

@@ -21,6 +21,7 @@ from logstats.accessors._labels import (
     column_values,
     factorize_keys,
     is_label_of,
+    is_limit_label,
     nested_codes,
     nested_levels,
     resolve_keys,
@@ -97,6 +98,10 @@ class _PandasBase(FigureMethods, ReportMethods):
                 return s
             return out
         frames = [tidy_frame(f, groups.index) for _, f in results]
+        if not frames:  # columns=[]: no value column, so no row (as groupby(...)[[]] has no cell)
+            index = pd.MultiIndex.from_arrays([[] for _ in range(groups.index.nlevels + 1)],
+                                              names=list(groups.index.names) + ["variable"])
+            return pd.DataFrame(index=index)
         if len(frames) == 1:
             return frames[0]
         return stack_variables(frames, [c for c, _ in results])
@@ -133,8 +138,8 @@ class _PandasBase(FigureMethods, ReportMethods):
             missing = [k for k in nested if not is_label_of(frame, k)]
             if missing:
                 raise KeyError(f"nested={missing!r} are not columns; there are {list(frame.columns)!r}")
-        aligned = [limit] + [args.get(p) for p in md.row_params] + (nested or [])
-        keys = tuple(k for k in aligned if is_label_of(frame, k))
+        aligned = [limit] + [args.get(p) for p in md.row_params]
+        keys = tuple(k for k in aligned if is_limit_label(frame, k)) + tuple(nested or [])
         df, cols, groups = self._setup(by, columns, observed, dropna, sort, other_keys=keys)
         policy = Policy(detection_limit=resolve_limit(df, limit), **policy_kw)
         for p in md.row_params:
@@ -254,7 +259,7 @@ class _PandasBase(FigureMethods, ReportMethods):
             raise ValueError("fold_change needs by= (the column whose levels are compared)")
         others = tuple(k for key in (replicate, within) if key is not None
                        for k in (key if isinstance(key, list) else [key]))
-        if is_label_of(self._frame(), detection_limit):
+        if is_limit_label(self._frame(), detection_limit):
             others += (detection_limit,)
         df, cols, groups = self._setup(by, columns, observed, dropna, sort=True, other_keys=others)
         policy = Policy(skipna=skipna, nonpositive=nonpositive,
@@ -270,22 +275,22 @@ class _PandasBase(FigureMethods, ReportMethods):
         rep_codes = n_rep = None
         nested = None
         if isinstance(replicate, list) and len(replicate) > 1:  # cells in wells in days: nested units
-            keys = resolve_keys(self._obj, replicate)
+            keys = resolve_keys(self._obj, replicate, keyword="replicate")
             frame = pd.DataFrame({i: k.to_numpy() for i, k in enumerate(keys)}, index=df.index)
             nested = nested_codes(frame)
             outer_codes, _ = pd.factorize(frame[0], sort=True)  # the outermost label itself, shared
             nested[0] = np.asarray(outer_codes, dtype=np.intp)
             nested_names = [str(k.name) for k in keys]
         elif replicate is not None:
-            rk = resolve_keys(self._obj, replicate)
+            rk = resolve_keys(self._obj, replicate, keyword="replicate")
             rg = factorize_keys(rk, dropna=True, sort=True)
             rep_codes, n_rep = rg.codes, rg.ngroups
         elif paired:
             raise ValueError("paired=True needs replicate= (the label shared by paired replicates)")
         strat_codes, n_strata, strata_index = None, 1, None
         if within is not None:
-            sg = factorize_keys(resolve_keys(self._obj, within), observed=observed, dropna=dropna,
-                                sort=True)
+            sg = factorize_keys(resolve_keys(self._obj, within, keyword="within"), observed=observed,
+                                dropna=dropna, sort=True)
             strat_codes, n_strata, strata_index = sg.codes, sg.ngroups, sg.index
         params = dict(paired=paired, equal_var=equal_var, confidence_level=confidence_level, adjust=adjust,
                       equivalence=equivalence, equivalence_alpha=equivalence_alpha)
@@ -305,8 +310,10 @@ class _PandasBase(FigureMethods, ReportMethods):
             warn_if_empty(res["ratio"][:, keep], reference=reference, where=_where(col), paired=paired,
                           n=res["n"][:, keep], n_reference=res["n_reference"][:, keep], stacklevel=3)
             results.append((col, res))
-        return fold_change_frame(results, groups.index, ref, strata_index,
-                                 "replicate" if replicate is not None else "value")
+        out = fold_change_frame(results, groups.index, ref, strata_index,
+                                "replicate" if replicate is not None else "value")
+        out.attrs["n_without_key"] = groups.n_unkeyed  # rows left out for a missing by= key
+        return out
 
     def log(self, *, base: Any = "e", columns: Any = None, nonpositive: str = "raise") -> Any:
         """Same-shape log transform (base ``"e"``, 2 or 10); other columns pass through unchanged.

@@ -38,8 +38,25 @@ def _is_value(da: xr.DataArray) -> bool:
 def _check_value(da: xr.DataArray, name: Hashable) -> None:
     if not _is_value(da):
         raise TypeError(
-            f"variable {name!r} has dtype {da.dtype}, which is not numeric; logstats needs positive numbers"
+            f"variable {name!r} has dtype {da.dtype}, which is not numeric; logstats needs positive numbers."
+            f"{_dtype_hint(da.dtype, name)}"
         )
+
+
+def _dtype_hint(dtype: np.dtype, name: Hashable) -> str:
+    """What to do with a non-numeric variable (the same advice as for a pandas column)."""
+    kind = dtype.kind
+    if kind == "c":
+        return f" {name!r} holds complex numbers: take .real or abs() explicitly if that is meant."
+    if kind == "b":
+        return f" {name!r} holds booleans: cast explicitly (.astype(float)) if they are numbers."
+    if kind in "mM":
+        return (f" {name!r} holds {dtype} values, which have no logarithm: convert them to a number of "
+                "units first.")
+    if kind in "OUS":
+        return (f" {name!r} holds objects or text: convert it explicitly (pd.to_numeric, or .astype(float)); "
+                "entries such as '<0.5' are non-detects for logstats.split_censored.")
+    return ""
 
 
 class Plan:
@@ -89,9 +106,20 @@ class Plan:
         for name, c in da.coords.items():
             if all(d in self.kept for d in c.dims) and name != self.by:
                 out[name] = c
-        if self.by is not None:
+        if isinstance(self.by, str):
             out[self.by] = self.group_index
         return out
+
+    def label(self, ds: Any, index: pd.Index | None = None) -> Any:
+        """Attach the group labels along the ``by`` dim. xarray cannot index a dim whose name is not a
+        string (it reads a tuple as several dims, and fails on a number), so for such a name the labels
+        are a coordinate without an index (selection by label then goes through ``.where``)."""
+        if self.by is None or isinstance(self.by, str):
+            return ds
+        labels = self.group_index if index is None else index
+        assert labels is not None
+        var = xr.Variable((self.by,), np.asarray(labels.tolist() if labels.dtype == object else labels))
+        return ds.assign_coords(xr.Coordinates({self.by: var}, indexes={}))
 
 
 def _one_dim(dim: Any, da: xr.DataArray) -> bool:
@@ -110,21 +138,54 @@ def _limit_for(source: Any, da: xr.DataArray, detection_limit: Any, plan: Plan,
     if detection_limit is None:
         return None
     if isinstance(detection_limit, (int, float, np.integer, np.floating)) and not isinstance(
-            detection_limit, (bool, np.bool_)) and not _names_variable(source, detection_limit):
-        return float(detection_limit)
+            detection_limit, (bool, np.bool_)) and (isinstance(detection_limit, (float, np.floating))
+                                                    or not _names_variable(source, detection_limit)):
+        return float(detection_limit)  # a float is always a number (never the variable named 1)
     if _names_variable(source, detection_limit):
         limit = source[detection_limit]
     elif isinstance(detection_limit, xr.DataArray):
         limit = detection_limit
-    elif isinstance(detection_limit, np.ndarray):
-        if detection_limit.shape != da.shape:
-            raise ValueError(f"{keyword}= array has shape {detection_limit.shape}; the data has "
+    elif isinstance(detection_limit, (np.ndarray, list, tuple)):
+        arr = np.asarray(detection_limit)
+        if arr.shape != da.shape:
+            raise ValueError(f"{keyword}= array has shape {arr.shape}; the data has "
                              f"{da.shape} (dims {da.dims}); pass a DataArray to broadcast by dim name")
-        limit = xr.DataArray(detection_limit, dims=da.dims)
+        limit = xr.DataArray(arr, dims=da.dims)
+    elif isinstance(detection_limit, Hashable) and not isinstance(detection_limit, pd.Series):
+        raise KeyError(f"{keyword}={detection_limit!r} is not a coordinate or variable; there are "
+                       f"{list(source.coords) + list(getattr(source, 'data_vars', []))!r}")
     else:
-        raise KeyError(f"{keyword}={detection_limit!r} is not a coordinate or variable")
-    limit = xr.broadcast(limit, da)[0]
-    return np.asarray(limit.transpose(*plan.kept, *plan.reduced).to_numpy(), dtype=np.float64)
+        raise TypeError(f"{keyword}= takes a number, a coordinate or variable name, a DataArray or an array "
+                        f"of the data's shape, not {type(detection_limit).__name__}")
+    return np.asarray(_aligned_like(limit, da, keyword).transpose(*plan.kept, *plan.reduced).to_numpy(),
+                      dtype=np.float64)
+
+
+def _aligned_like(limit: xr.DataArray, da: xr.DataArray, keyword: str) -> xr.DataArray:
+    """An aligned argument (a DataArray) laid out like ``da``: aligned on the shared dims' labels as
+    xarray would (another order, extra labels), broadcast over the dims it lacks. A dim the data lacks, a
+    label of the data it lacks, or a conflicting length is a ValueError naming the keyword."""
+    extra = [d for d in limit.dims if d not in da.dims]
+    if extra:
+        raise ValueError(f"{keyword}= has dim(s) {extra!r} that the data lacks (the data has dims "
+                         f"{list(da.dims)!r})")
+    for d in limit.dims:
+        if d in limit.indexes and d in da.indexes:
+            have, want = limit.indexes[d], da.indexes[d]
+            if not have.equals(want):
+                lacking = int((~want.isin(have)).sum())
+                if lacking:
+                    raise ValueError(f"{keyword}= is not aligned with the data along {d!r}: {lacking} of "
+                                     f"{len(want)} label(s) of the data have no entry; pass one value per "
+                                     f"position (or .reindex_like(data) it yourself to mean 'no value')")
+                if not have.is_unique:
+                    raise ValueError(f"{keyword}= has duplicated labels along {d!r}; it cannot be aligned")
+                limit = limit.reindex({d: want})
+        elif limit.sizes[d] != da.sizes[d]:
+            raise ValueError(f"{keyword}= has {limit.sizes[d]} position(s) along {d!r}; the data has "
+                             f"{da.sizes[d]}")
+    return limit.drop_vars(list(limit.coords)).transpose(*[d for d in da.dims if d in limit.dims]) \
+        .broadcast_like(da.drop_vars(list(da.coords)))
 
 
 def _names_variable(source: Any, key: Any) -> bool:
@@ -146,7 +207,18 @@ def _wrap(out: dict[str, Any], method: Method, plan: Plan, da: xr.DataArray, kee
     for k, v in out.items():
         attrs = dict(da.attrs) if keep_attrs and k in unit_fields else {}
         res[k] = xr.DataArray(v, dims=dims, coords=coords, attrs=attrs)
-    return xr.Dataset(res)
+    ds = xr.Dataset(res)
+    return ds if pooled else plan.label(ds)
+
+
+def _count_unkeyed(res: Any, plan: Plan | None) -> Any:
+    """Positions left out for a missing ``by`` label (NaN, NaT, None in the coordinate), as pandas
+    groupby's dropna leaves them out: counted in ``attrs["n_without_key"]`` of the result (no warning
+    here: a coordinate with gaps is common in arrays, and the count travels with the result)."""
+    if plan is None or plan.by is None:
+        return res
+    res.attrs["n_without_key"] = plan.n_unkeyed
+    return res
 
 
 class _XarrayBase(FigureMethods):
@@ -209,6 +281,7 @@ class _XarrayBase(FigureMethods):
         dim, by, keep_attrs = args.pop("dim"), args.pop("by"), args.pop("keep_attrs")
         check_nonpositive(nonpositive)
         parts = []
+        plan: Plan | None = None
         for vname, da in self._usable(dim, by):
             _check_value(da, vname)
             plan = Plan(da, dim, by)
@@ -243,9 +316,9 @@ class _XarrayBase(FigureMethods):
             if self._is_array():
                 res = parts[0][1][name]
                 res.name = self._obj.name
-                return res
-            return xr.Dataset({vname: ds[name] for vname, ds in parts})
-        return self._tidy(parts)
+                return _count_unkeyed(res, plan)
+            return _count_unkeyed(xr.Dataset({vname: ds[name] for vname, ds in parts}), plan)
+        return _count_unkeyed(self._tidy(parts), plan)
 
     def fold_change(self, dim: Any = None, *, by: Hashable, reference: Any, replicate: Any = None,
                     paired: bool = False, equal_var: bool = False, confidence_level: float = 0.95,
@@ -266,9 +339,12 @@ class _XarrayBase(FigureMethods):
         params = dict(paired=paired, equal_var=equal_var, confidence_level=confidence_level, adjust=adjust,
                       equivalence=equivalence, equivalence_alpha=equivalence_alpha)
 
+        plans: list[Plan] = []
+
         def one(da: xr.DataArray, name: Hashable) -> xr.Dataset:
             _check_value(da, name)
             plan = Plan(da, dim, by)
+            plans.append(plan)
             assert plan.labels is not None and plan.codes is not None and plan.group_index is not None
             if reference not in plan.labels:
                 raise ValueError(f"reference={reference!r} is not a level of {by!r}; "
@@ -320,7 +396,8 @@ class _XarrayBase(FigureMethods):
                           n_reference=np.asarray(res["n_reference"])[:, keep], stacklevel=4)
             shape = data.shape[:-1] + (len(keep),)
             coords = plan.coords(da)
-            coords[by] = plan.group_index.take(keep)
+            if isinstance(by, str):
+                coords[by] = plan.group_index.take(keep)
             out = {}
             for k in res:
                 if k == "log_ratio":
@@ -331,9 +408,10 @@ class _XarrayBase(FigureMethods):
                 out[k] = xr.DataArray(v, dims=plan.out_dims(), coords=coords)
             out["unit"] = xr.DataArray(np.full(shape, "replicate" if replicate is not None else "value",
                                                dtype=object), dims=plan.out_dims(), coords=coords)
-            return xr.Dataset(out)
+            return plan.label(xr.Dataset(out), plan.group_index.take(keep))
 
-        return self._tidy(self._each(one))
+        res = self._tidy(self._each(one))
+        return _count_unkeyed(res, plans[0] if plans else None)
 
     def log(self, *, base: Any = "e", nonpositive: str = "raise", keep_attrs: bool = True) -> Any:
         """Same-shape log transform (base ``"e"``, 2 or 10); ``units`` become ``log_<base>(units)``."""
@@ -400,8 +478,10 @@ class LogstatsDatasetAccessor(_XarrayBase):
     def _variables(self) -> list[tuple[Hashable, xr.DataArray]]:
         out = [(k, v) for k, v in self._obj.data_vars.items() if _is_value(v)]
         if not out:
-            names = list(self._obj.data_vars)
-            raise TypeError(f"the Dataset has no numeric data variables (it has {names!r})")
+            kinds = ", ".join(f"{k!r} ({v.dtype})" for k, v in self._obj.data_vars.items())
+            hints = "".join(_dtype_hint(v.dtype, k) for k, v in self._obj.data_vars.items())
+            raise TypeError(f"the Dataset has no numeric data variables (it has {kinds or 'none'}); logstats "
+                            f"needs positive real numbers.{hints}")
         return out
 
 
