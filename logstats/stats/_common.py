@@ -76,8 +76,8 @@ def _detection_limits(detection_limit: Any, size: int) -> np.ndarray | None:
 def group_value_order(values: np.ndarray, codes: np.ndarray, ngroups: int) -> np.ndarray:
     """The permutation that sorts rows by (group, value): ``np.lexsort((values, codes))``, faster.
 
-    The values are sorted first (one float argsort), then the group codes with a stable sort in the
-    smallest integer type that holds them (numpy uses a radix sort for 16-bit keys), which keeps the
+    The values are sorted first (one float argsort), then the group codes with a stable radix sort
+    (:func:`stable_code_order`), which keeps the
     value order within each group: about 3x faster than ``lexsort`` for 1e6 rows and 1,000 groups.
     NaN values sort last within their group, as in ``lexsort``.
     """
@@ -86,14 +86,10 @@ def group_value_order(values: np.ndarray, codes: np.ndarray, ngroups: int) -> np
     if v.size < 2:
         return np.arange(v.size)
     order = np.argsort(v)  # ties in value need no order: equal values are interchangeable
-    small: type = np.int64
-    if c.size and c.min() >= 0:
-        small = np.uint16 if ngroups < 2**16 else np.uint32 if ngroups < 2**32 else np.int64
-    elif ngroups < 2**15:
-        small = np.int16
-    elif ngroups < 2**31:
-        small = np.int32
-    return order[np.argsort(c[order].astype(small), kind="stable")]
+    c = c[order]
+    low = int(c.min())
+    shifted = c - low if low < 0 else c  # negative codes sort first, as in lexsort
+    return order[stable_code_order(shifted, max(int(ngroups), int(shifted.max()) + 1))]
 
 
 def stable_code_order(codes: np.ndarray, ngroups: int) -> np.ndarray:
