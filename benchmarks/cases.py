@@ -443,6 +443,10 @@ def _r(label: str, run: Callable[..., Any], fields: str, source: str) -> Referen
 
 _SCIPY_GM = _r("scipy per group", lambda df: _per_group(df, lambda v: {"gmean": stats.gmean(v)}), "gmean",
                "groupby.agg(scipy.stats.gmean)")
+_SCIPY_SCALE = _r("scipy per group", _ref_scale_loop,
+                  "boxcox_lambda boxcox_ci_low boxcox_ci_high normality_p_linear normality_p_log aic_normal "
+                  "aic_lognormal",
+                  "scipy.stats.boxcox(x, alpha=0.05) + shapiro(x), shapiro(ln x) + AICs per group")
 CASES: tuple[Case, ...] = (
     Case("gmean", "gmean", _frame, {"quick": (200, 50), "full": (10_000, 100)},
          lambda df: df.logstats.gmean(by="g", columns="x"),
@@ -521,17 +525,11 @@ CASES: tuple[Case, ...] = (
          ours_text='exceedance(by="g", limit=L)'),
     Case("scale_check", "scale_check", _frame, {"quick": (20, 50), "full": (1_000, 100)},
          lambda df: df.logstats.scale_check(by="g", columns="x"),
-         (_r("scipy per group", _ref_scale_loop,
-             "boxcox_lambda boxcox_ci_low boxcox_ci_high normality_p_linear normality_p_log aic_normal "
-             "aic_lognormal",
-             "scipy.stats.boxcox(x, alpha=0.05) + shapiro(x), shapiro(ln x) + AICs per group"),),
+         (_SCIPY_SCALE,),
          absolute=("boxcox_lambda", "boxcox_ci_low", "boxcox_ci_high"), ours_text='scale_check(by="g")'),
     Case("scale_check unsorted", "scale_check", _shuffled, {"quick": (5, 400), "full": (100, 4_000)},
          lambda df: df.logstats.scale_check(by="g", columns="x"),
-         (_r("scipy per group", _ref_scale_loop,
-             "boxcox_lambda boxcox_ci_low boxcox_ci_high normality_p_linear normality_p_log aic_normal "
-             "aic_lognormal",
-             "scipy.stats.boxcox(x, alpha=0.05) + shapiro(x), shapiro(ln x) + AICs per group"),
+         (_SCIPY_SCALE,
           _r("shapiro only", _ref_shapiro_loop, "normality_p_linear normality_p_log",
              "scipy.stats.shapiro(x), shapiro(ln x) per group (no Box-Cox, no AIC)")),
          absolute=("boxcox_lambda", "boxcox_ci_low", "boxcox_ci_high"),
