@@ -125,6 +125,27 @@ def test_many_groups_at_once_equal_one_by_one():
         assert out["preferred"][g] == alone["preferred"][0]
 
 
+def test_large_groups_in_random_row_order_equal_scipy():
+    """Groups of 4,000 and 6,000 values (the run-by-run sums and the reused work arrays of the Box-Cox
+    profile; Royston's large-n branch of the p-value): lambda equals the tight scipy maximisation, the
+    interval scipy.stats.boxcox(alpha=0.05), p scipy.stats.shapiro (n <= 5,000, its stated range);
+    no RuntimeWarning (pytest turns warnings into errors)."""
+    rng = np.random.default_rng(142)
+    groups = [rng.lognormal(1.0, 0.5, 4000), rng.normal(50.0, 5.0, 6000), rng.gamma(2.0, 3.0, 4500),
+              rng.lognormal(0.0, 1.0, 81)]  # n = 81: the small-n branch, not taken, overflowed (a warning)
+    x, codes = stack(groups, rng)
+    out = scale_check(x, codes, len(groups))
+    for g, xg in enumerate(groups):
+        _, _, (lo, hi) = stats.boxcox(xg, alpha=0.05)
+        np.testing.assert_allclose(out["boxcox_lambda"][g], tight_lambda(xg), atol=1e-7)
+        np.testing.assert_allclose([out["boxcox_ci_low"][g], out["boxcox_ci_high"][g]], [lo, hi], atol=1e-7)
+        if xg.size <= 5000:
+            np.testing.assert_allclose(out["normality_p_linear"][g], stats.shapiro(xg).pvalue, rtol=1e-6,
+                                       atol=1e-12)
+            np.testing.assert_allclose(out["normality_p_log"][g], stats.shapiro(np.log(xg)).pvalue,
+                                       rtol=1e-6, atol=1e-12)
+
+
 # ----------------------------------------------------------------------------------------------------
 # verdict
 

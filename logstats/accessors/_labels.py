@@ -112,7 +112,11 @@ def _int_codes(key: pd.Series, sort: bool) -> tuple[np.ndarray, pd.Index] | None
         return None
     codes = np.empty(n, dtype=np.intp)
     np.subtract(a, lo, out=codes, dtype=np.intp, casting="unsafe")  # exact: span fits in intp
-    present = np.bincount(codes, minlength=span).astype(bool)
+    if bool((codes[1:] >= codes[:-1]).all()):  # sorted keys (tables written group by group):
+        present = np.zeros(span, dtype=bool)  # the values at the changes are all there is
+        present[codes[np.r_[0, np.flatnonzero(codes[1:] != codes[:-1]) + 1]]] = True
+    else:
+        present = np.bincount(codes, minlength=span).astype(bool)
     occurs = np.flatnonzero(present)
     if len(occurs) < span:
         lookup = np.cumsum(present, dtype=np.intp) - 1

@@ -715,24 +715,36 @@ class _BoxCoxProblem:
         self.ncell = cell_prob.size
         self.prow = cell_prob[cell]
         self.nprob = nprob
-        self.cnt = np.bincount(cell, minlength=self.ncell).astype(np.float64)
-        self.N = np.bincount(self.prow, minlength=nprob).astype(np.float64)
+        self.cell_sums = _Sums(cell, self.ncell)
+        self.prob_sums = _Sums(self.prow, nprob)
+        self.cnt = self.cell_sums.counts.astype(np.float64)
+        self.N = self.prob_sums.counts.astype(np.float64)
         zmax = np.full(nprob, -np.inf)
         zmin = np.full(nprob, np.inf)
         np.maximum.at(zmax, self.prow, z)
         np.minimum.at(zmin, self.prow, z)
         self.zmax, self.zmin = zmax, zmin
+        self._buffers: dict[str, np.ndarray] = {}
 
     def _shift(self, lam: np.ndarray) -> np.ndarray:
         """Per-problem ``c = max λz`` when that exceeds the overflow guard, else 0."""
         c = np.where(lam > 0, lam * self.zmax, lam * self.zmin)
         return np.where(c > _BC_SHIFT, c, 0.0)
 
-    def _ss(self, w: np.ndarray, p: int) -> tuple[np.ndarray, np.ndarray]:
-        """Deviations of ``w`` from its cell means, and their sum of squares per problem."""
-        mw = np.bincount(self.cell, weights=w, minlength=self.ncell) / self.cnt
-        d = w - mw[self.cell]
-        return d, np.bincount(self.prow, weights=d * d, minlength=p)
+    def _buffer(self, name: str) -> np.ndarray:
+        """A row-length work array kept between evaluations (fresh multi-megabyte temporaries at every
+        evaluation cost more in page faults than the arithmetic done in them)."""
+        buf = self._buffers.get(name)
+        if buf is None:
+            buf = self._buffers[name] = np.empty(self.z.size)
+        return buf
+
+    def _ss(self, w: np.ndarray, into: str) -> tuple[np.ndarray, np.ndarray]:
+        """Deviations of ``w`` from its cell means (in buffer ``into``), and their sum of squares per
+        problem."""
+        d = self.cell_sums.spread(self.cell_sums.sum(w) / self.cnt, self._buffer(into))
+        np.subtract(w, d, out=d)
+        return d, self.prob_sums.sum(np.multiply(d, d, out=self._buffer("tmp")))
 
     def eval(self, lam: np.ndarray, order: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """``h``, ``h'``, ``h''`` at per-problem ``lam`` (derivatives only up to ``order``, else NaN).
@@ -740,70 +752,110 @@ class _BoxCoxProblem:
         ``w = expm1(λz)/λ`` is accurate for every ``λ ≠ 0``; its derivatives follow from
         ``w' = (z·e^{λz} − w)/λ`` and ``w'' = (z²·e^{λz} − 2w')/λ``, which cancel for small ``|λz|``: there
         the power series of ``E₂``, ``E₃`` are used instead. Problems where ``λz`` would overflow are
-        computed on the ``exp(λz − c)`` scale, ``c = max λz`` (the factor cancels in ``h'`` and ``h''``).
+        computed on the ``exp(λz − c)`` scale, ``c = max λz`` (the factor cancels in ``h'`` and ``h''``);
+        there ``w`` itself comes from the series of ``E₁`` for small ``|λz|`` (``e^{t−c} − e^{−c}`` cancels).
         """
-        z, pr = self.z, self.prow
+        z = self.z
+        ps = self.prob_sums
+        buf = self._buffer
         nan = np.full(self.nprob, np.nan)
         with np.errstate(divide="ignore", invalid="ignore", over="ignore", under="ignore"):
             c = self._shift(lam)
-            lr = lam[pr]
-            t = lr * z
-            inv = 1.0 / lr
+            t = np.multiply(ps.spread(lam, buf("t")), z, out=buf("t"))
+            inv = ps.spread(1.0 / lam, buf("inv"))
             shifted = bool((c > 0).any())
+            e = buf("e")
             if shifted:
-                cs = c[pr]
+                cs = ps.spread(c, buf("tmp"))
+                np.subtract(t, cs, out=e)
+                np.exp(e, out=e)
                 ec = np.exp(-cs)
-                e = np.exp(t - cs)
                 em1 = np.where(cs > 0, e - ec, np.expm1(t))
             else:
-                em1 = np.expm1(t)
-            w = em1 * inv
+                em1 = np.expm1(t, out=e)
+            w = np.multiply(em1, inv, out=buf("w"))
             zero = lam == 0.0
             if zero.any():
-                w = np.where(zero[pr], z, w)
-            small = np.flatnonzero(np.abs(t) < _BC_SERIES) if order >= 1 else np.zeros(0, dtype=np.intp)
+                np.copyto(w, z, where=ps.spread(zero.astype(np.float64), buf("tmp")) > 0)
+            need_series = order >= 1 or shifted
+            small = np.flatnonzero(np.abs(t) < _BC_SERIES) if need_series else np.zeros(0, dtype=np.intp)
             if small.size:
-                s1, s2, s3 = self._series(t[small], order)
+                s1, s2, s3 = _series(t[small], order, shifted)
                 zs = z[small]
                 scl = ec[small] if shifted else 1.0
-                w[small] = zs * s1 * scl
-            d, ss = self._ss(w, self.nprob)
+                if shifted:
+                    w[small] = zs * s1 * scl
+            d, ss = self._ss(w, "d")
             h = np.log(ss / self.N) + 2.0 * c
             if order < 1:
                 return h, nan, nan
             if not shifted:
-                e = em1 + 1.0
-            ze = z * e
-            w1 = (ze - w) * inv
+                e += 1.0  # e^{λz}, from expm1
+            ze = np.multiply(z, e, out=e)
+            w1 = np.subtract(ze, w, out=buf("w1"))
+            w1 *= inv
             if small.size:
                 w1[small] = zs * zs * s2 * scl
-            c01 = np.bincount(pr, weights=d * w1, minlength=self.nprob)
+            c01 = ps.sum(np.multiply(d, w1, out=buf("tmp")))
             h1 = 2.0 * c01 / ss
             if order < 2:
                 return h, h1, nan
-            w2 = (z * ze - 2.0 * w1) * inv
+            w2 = np.multiply(z, ze, out=buf("w2"))
+            w2 -= w1
+            w2 -= w1
+            w2 *= inv
             if small.size:
                 w2[small] = zs * zs * zs * s3 * scl
-            _, s11 = self._ss(w1, self.nprob)
-            c02 = np.bincount(pr, weights=d * w2, minlength=self.nprob)
+            c02 = ps.sum(np.multiply(d, w2, out=buf("tmp")))
+            _, s11 = self._ss(w1, "d1")
             h2 = 2.0 * (s11 + c02) / ss - h1 * h1
         return h, h1, h2
 
-    @staticmethod
-    def _series(t: np.ndarray, order: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """``E_j(t) = Σ_k t^k / (k!·(k + j))`` for j = 1, 2, 3 (small ``|t|``)."""
-        term = np.ones_like(t)
-        s1 = np.zeros_like(t)
-        s2 = np.zeros_like(t)
-        s3 = np.zeros_like(t)
-        for k in range(_BC_TERMS):
-            s1 += term / (k + 1)
-            if order >= 1:
-                s2 += term / (k + 2)
-            if order >= 2:
-                s3 += term / (k + 3)
-            term = term * t / (k + 1)
-        return s1, s2, s3
+
+#: Coefficients of ``E_j(t) = Σ_k t^k / (k!·(k + j))`` (j = 1, 2, 3), for Horner's rule.
+_BC_COEF = {j: np.array([1.0 / (math.factorial(k) * (k + j)) for k in range(_BC_TERMS)]) for j in (1, 2, 3)}
+
+
+def _series(t: np.ndarray, order: int, with_e1: bool) -> tuple[Any, Any, Any]:
+    """``E₁`` (only when ``with_e1``), ``E₂`` (order >= 1) and ``E₃`` (order >= 2) at small ``|t|``."""
+
+    def horner(j: int) -> np.ndarray:
+        coef = _BC_COEF[j]
+        s = np.full_like(t, coef[-1])
+        for ck in coef[-2::-1]:
+            s *= t
+            s += ck
+        return s
+
+    return (horner(1) if with_e1 else None, horner(2) if order >= 1 else None,
+            horner(3) if order >= 2 else None)
+
+
+class _Sums:
+    """Per-slot sums of row values, and per-row copies of per-slot values, for rows labelled by slot.
+
+    Rows sorted by slot (as the grouped Box-Cox problems are built) are summed run by run with
+    ``np.add.reduceat`` and spread with ``np.repeat``; otherwise ``np.bincount`` and a gather.
+    """
+
+    def __init__(self, slot: np.ndarray, size: int) -> None:
+        self.slot, self.size = slot, size
+        self.counts = np.bincount(slot, minlength=size)
+        self.runs = slot.size > 0 and bool((slot[1:] >= slot[:-1]).all())
+        if self.runs:
+            self.present = np.flatnonzero(self.counts)
+            self.starts = np.concatenate([[0], np.cumsum(self.counts[self.present])[:-1]]).astype(np.intp)
+
+    def sum(self, w: np.ndarray) -> np.ndarray:
+        if not self.runs:
+            return np.bincount(self.slot, weights=w, minlength=self.size)
+        out = np.zeros(self.size)
+        out[self.present] = np.add.reduceat(w, self.starts)
+        return out
+
+    def spread(self, v: np.ndarray, out: np.ndarray) -> np.ndarray:
+        """``v[slot]`` into ``out``."""
+        return np.take(v, self.slot, out=out, mode="clip")  # slots are in range: no check needed
 
 
 def _boxcox_solve(prob: _BoxCoxProblem, q: float) -> dict[str, np.ndarray]:
