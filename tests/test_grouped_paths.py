@@ -79,3 +79,25 @@ def test_runs_are_found_only_when_long():
     np.testing.assert_array_equal(starts, np.arange(0, 10_000, 100))
     np.testing.assert_array_equal(lengths, np.full(100, 100))
     assert mom._runs(np.arange(10_000, dtype=np.intp) % 7) is None  # changes at every row
+
+
+@settings(max_examples=40, deadline=None)
+@given(n=st.integers(1, 3000), size=st.integers(1, 50), ordered=st.booleans(), seed=st.integers(0, 2**31 - 1))
+def test_group_sums_equal_bincount_and_take(n, size, ordered, seed):
+    """The run-by-run sums of the order statistics (Shapiro-Wilk, Box-Cox) against numpy's own
+    ``np.bincount(weights=)`` and ``v[slot]``, with groups left empty anywhere (first, last, between)."""
+    from logstats.stats._common import GroupSums
+
+    rng = np.random.default_rng(seed)
+    slot = rng.integers(0, size, n)
+    if ordered:
+        slot = np.sort(slot)
+    w = rng.normal(size=n)
+    sums = GroupSums(slot, size)
+    assert sums.runs == (ordered or bool((slot[1:] >= slot[:-1]).all()))
+    np.testing.assert_allclose(sums.sum(w), np.bincount(slot, weights=w, minlength=size), rtol=1e-12,
+                               atol=1e-12)
+    np.testing.assert_array_equal(sums.counts, np.bincount(slot, minlength=size))
+    v = rng.normal(size=size)
+    np.testing.assert_array_equal(sums.spread(v), v[slot])
+    np.testing.assert_array_equal(sums.spread(v, np.empty(n)), v[slot])

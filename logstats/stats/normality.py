@@ -9,6 +9,8 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
+from logstats.stats._common import GroupSums, group_sum
+
 __all__: list[str] = []
 
 _SW_C1 = (0.0, 0.221157, -0.147981, -2.07119, 4.434685, -2.706056)
@@ -60,7 +62,7 @@ def _sw_coefficients(rank: np.ndarray, nrow: np.ndarray, gs: np.ndarray, G: int,
     inner = lo < half
     m_row = np.where(inner, _ppnd((lo + 1 - 0.375) / (nf + 0.25)), 0.0)
     lower = inner & (rank < nrow - 1 - rank)
-    summ2 = 2.0 * np.bincount(gs[lower], weights=m_row[lower] ** 2, minlength=G)
+    summ2 = 2.0 * group_sum(m_row[lower] ** 2, gs[lower], G)
     ng = n.astype(np.float64)
     with np.errstate(divide="ignore", invalid="ignore"):
         ssumm2 = np.sqrt(summ2)
@@ -87,13 +89,14 @@ def _sw_coefficients(rank: np.ndarray, nrow: np.ndarray, gs: np.ndarray, G: int,
 def _sw_statistic(v: np.ndarray, coef: np.ndarray, gs: np.ndarray, G: int, nf: np.ndarray,
                   mean: np.ndarray, rng_: np.ndarray) -> np.ndarray:
     """``1 − W`` per group from sorted values ``v`` and row coefficients (AS R94 formulation)."""
+    sums = GroupSums(gs, G)
     with np.errstate(divide="ignore", invalid="ignore"):
-        sa = np.bincount(gs, weights=coef, minlength=G) / nf
+        sa = sums.sum(coef) / nf
         asa = coef - sa[gs]
         xsx = (v - mean[gs]) / rng_[gs]
-        ssa = np.bincount(gs, weights=asa * asa, minlength=G)
-        ssx = np.bincount(gs, weights=xsx * xsx, minlength=G)
-        sax = np.bincount(gs, weights=asa * xsx, minlength=G)
+        ssa = sums.sum(asa * asa)
+        ssx = sums.sum(xsx * xsx)
+        sax = sums.sum(asa * xsx)
         ssassx = np.sqrt(ssa * ssx)
         return (ssassx - sax) * (ssassx + sax) / (ssa * ssx)
 
@@ -153,15 +156,16 @@ def _dagostino_pearson(m2: np.ndarray, m3: np.ndarray, m4: np.ndarray, n: np.nda
 
 def _central_moments(v: np.ndarray, gs: np.ndarray, nf: np.ndarray, G: int) -> tuple[np.ndarray, ...]:
     """Per-group mean and biased central moments m2, m3, m4 (corrected two-pass)."""
+    sums = GroupSums(gs, G)
     with np.errstate(divide="ignore", invalid="ignore"):
-        mean0 = np.bincount(gs, weights=v, minlength=G) / nf
+        mean0 = sums.sum(v) / nf
         d = v - mean0[gs]
-        mean = mean0 + np.bincount(gs, weights=d, minlength=G) / nf
+        mean = mean0 + sums.sum(d) / nf
         d = v - mean[gs]
         d2 = d * d
-        m2 = np.bincount(gs, weights=d2, minlength=G) / nf
-        m3 = np.bincount(gs, weights=d2 * d, minlength=G) / nf
-        m4 = np.bincount(gs, weights=d2 * d2, minlength=G) / nf
+        m2 = sums.sum(d2) / nf
+        m3 = sums.sum(d2 * d) / nf
+        m4 = sums.sum(d2 * d2) / nf
     return mean, m2, m3, m4
 
 

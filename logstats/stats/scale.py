@@ -21,6 +21,7 @@ from logstats.core.moments import moments_by_codes
 from logstats.core.transform import check_nonpositive, to_logs
 from logstats.stats._common import (
     _LOG_2PI,
+    GroupSums,
     _count,
     _detection_limits,
     _group_codes,
@@ -715,8 +716,8 @@ class _BoxCoxProblem:
         self.ncell = cell_prob.size
         self.prow = cell_prob[cell]
         self.nprob = nprob
-        self.cell_sums = _Sums(cell, self.ncell)
-        self.prob_sums = _Sums(self.prow, nprob)
+        self.cell_sums = GroupSums(cell, self.ncell)
+        self.prob_sums = GroupSums(self.prow, nprob)
         self.cnt = self.cell_sums.counts.astype(np.float64)
         self.N = self.prob_sums.counts.astype(np.float64)
         zmax = np.full(nprob, -np.inf)
@@ -829,33 +830,6 @@ def _series(t: np.ndarray, order: int, with_e1: bool) -> tuple[Any, Any, Any]:
 
     return (horner(1) if with_e1 else None, horner(2) if order >= 1 else None,
             horner(3) if order >= 2 else None)
-
-
-class _Sums:
-    """Per-slot sums of row values, and per-row copies of per-slot values, for rows labelled by slot.
-
-    Rows sorted by slot (as the grouped Box-Cox problems are built) are summed run by run with
-    ``np.add.reduceat`` and spread with ``np.repeat``; otherwise ``np.bincount`` and a gather.
-    """
-
-    def __init__(self, slot: np.ndarray, size: int) -> None:
-        self.slot, self.size = slot, size
-        self.counts = np.bincount(slot, minlength=size)
-        self.runs = slot.size > 0 and bool((slot[1:] >= slot[:-1]).all())
-        if self.runs:
-            self.present = np.flatnonzero(self.counts)
-            self.starts = np.concatenate([[0], np.cumsum(self.counts[self.present])[:-1]]).astype(np.intp)
-
-    def sum(self, w: np.ndarray) -> np.ndarray:
-        if not self.runs:
-            return np.bincount(self.slot, weights=w, minlength=self.size)
-        out = np.zeros(self.size)
-        out[self.present] = np.add.reduceat(w, self.starts)
-        return out
-
-    def spread(self, v: np.ndarray, out: np.ndarray) -> np.ndarray:
-        """``v[slot]`` into ``out``."""
-        return np.take(v, self.slot, out=out, mode="clip")  # slots are in range: no check needed
 
 
 def _boxcox_solve(prob: _BoxCoxProblem, q: float) -> dict[str, np.ndarray]:
