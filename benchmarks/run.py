@@ -277,9 +277,12 @@ def bench_methods(cfg: dict[str, Any], repeats: int) -> list[dict[str, Any]]:
 
     warm_up()
     gc.freeze()  # the modules just imported: see main()
-    mode = "quick" if cfg is QUICK else "full"
+    mode = "quick" if cfg["quick"] else "full"
     out = []
+    wanted = cfg.get("cases")
     for case in CASES:
+        if wanted and not any(w in case.name for w in wanted):
+            continue
         t_case = time.perf_counter()
         size = case.size[mode]
         data = case.data(size)
@@ -349,7 +352,7 @@ def bench_layouts(cfg: dict[str, Any], repeats: int) -> list[dict[str, Any]]:
     except ImportError:
         print("layouts: skipped (benchmarks/layouts.py is not there)")
         return [{"section": "layouts", "skipped": "benchmarks/layouts.py not present"}]
-    return layout_cases(cfg is QUICK, repeats)
+    return layout_cases(cfg["quick"], repeats)
 
 
 # --------------------------------------------------------------------------- memory (subprocesses)
@@ -650,11 +653,13 @@ def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(prog="python -m benchmarks", description=__doc__.split("\n\n")[0])
     ap.add_argument("--quick", action="store_true", help="small sizes: a smoke run in well under a minute")
     ap.add_argument("--only", nargs="+", choices=SECTIONS, default=list(SECTIONS), help="sections to run")
+    ap.add_argument("--cases", nargs="+", default=None,
+                    help="methods section: only the cases whose name contains one of these words")
     ap.add_argument("--repeats", type=int, default=None, help="timed calls per implementation (median)")
     ap.add_argument("--output", type=Path, default=None, help="JSON file (default benchmarks/results/)")
     ap.add_argument("--readme", action="store_true", help="rewrite the results block of benchmarks/README.md")
     args = ap.parse_args(argv)
-    cfg = QUICK if args.quick else FULL
+    cfg = dict(QUICK if args.quick else FULL, quick=args.quick, cases=args.cases)
     repeats = args.repeats or (3 if args.quick else 5)
     info = machine()
     t0 = time.perf_counter()

@@ -82,6 +82,7 @@ class Method:
     row_params: tuple[str, ...] = ()  # keywords that may hold one value per data value (aligned like data)
     variant: tuple[str, str] | None = None  # (keyword, method): a true keyword switches to that method
     pools_groups: bool = False  # one result for all groups of ``by`` together (no group axis)
+    spread: bool = True  # the kernel reads m2_log; False: counts and means only (one pass, m2_log NaN)
     positional: tuple[str, ...] = ()  # keywords that come first and may be given by position
     expand: str | None = None  # a keyword that may be a list: one result per item, stacked on a new level
     reference: str = ""  # the outside reference of the tests and benchmarks
@@ -199,7 +200,7 @@ def declare(m: Method) -> Method:
 
 declare(Method(
     name="gmean", summary="Geometric mean ``exp(mean(ln x))``.",
-    reduction="moments", kernel="logstats.stats.finalize:gmean_fields",
+    reduction="moments", kernel="logstats.stats.finalize:gmean_fields", spread=False,
     fields=(Field("gmean", unit=True),), shape="single",
     reference="scipy.stats.gmean",
 ))

@@ -101,3 +101,53 @@ def test_group_sums_equal_bincount_and_take(n, size, ordered, seed):
     v = rng.normal(size=size)
     np.testing.assert_array_equal(sums.spread(v), v[slot])
     np.testing.assert_array_equal(sums.spread(v, np.empty(n)), v[slot])
+
+
+@settings(max_examples=40, deadline=None)
+@given(n=st.integers(0, 2000), widths=st.lists(st.integers(1, 40), min_size=1, max_size=3),
+       seed=st.integers(0, 2**31 - 1))
+def test_occurring_keys_and_unique_rows_equal_numpy_unique(n, widths, seed):
+    """Replicate and nesting keys are found by marking which occur; numpy's np.unique (sorting) is the
+    reference, for flat keys and for rows (np.unique(axis=0))."""
+    from logstats.stats._common import occurring_keys, unique_rows
+
+    rng = np.random.default_rng(seed)
+    rows = np.stack([rng.integers(0, w, n) for w in widths], axis=1).astype(np.int64)
+    space = int(np.prod(widths))
+    key = rows[:, 0] if rows.shape[1] == 1 else np.ravel_multi_index(rows.T, widths).astype(np.int64)
+    uniq, inv = occurring_keys(key, space)
+    ref_u, ref_inv = np.unique(key, return_inverse=True)
+    np.testing.assert_array_equal(uniq, ref_u)
+    np.testing.assert_array_equal(inv, ref_inv.ravel())
+    uniq_r, inv_r = unique_rows(rows)
+    ref_r, ref_rinv = np.unique(rows, axis=0, return_inverse=True)
+    np.testing.assert_array_equal(uniq_r, ref_r)
+    np.testing.assert_array_equal(inv_r, ref_rinv.ravel())
+    # keys outside the stated space, or negative, fall back to the sort
+    if n:
+        bad = key.copy()
+        bad[0] = -5
+        np.testing.assert_array_equal(occurring_keys(bad, space)[0], np.unique(bad))
+
+
+@pytest.mark.parametrize("layout", ["sorted", "shuffled"])
+def test_location_only_moments_equal_the_full_pass(layout):
+    """``spread=False`` (the geometric mean's one-pass moments) gives the counts and means of the full
+    two-pass moments, along axes and by groups, with bad values; m2 is left undefined. The geometric
+    mean itself is checked against scipy.stats.gmean (the reference library)."""
+    from scipy import stats
+
+    rng = np.random.default_rng(8)
+    x = rng.lognormal(1.0, 1.0, (4, 30_000))
+    x[2, ::50] = np.nan
+    x[3, ::70] = 0.0
+    codes = _codes(layout, x.shape[1], 25, rng)
+    for full, one in [(mom.moments_by_codes(x, codes, 25), mom.moments_by_codes(x, codes, 25, spread=False)),
+                      (mom.moments_along(x, axis=1), mom.moments_along(x, axis=1, spread=False)),
+                      (mom.moments_along(x.T, axis=0), mom.moments_along(x.T, axis=0, spread=False))]:
+        for field in ("n", "n_missing", "n_nonpositive"):
+            np.testing.assert_array_equal(np.asarray(getattr(one, field)), np.asarray(getattr(full, field)))
+        np.testing.assert_allclose(np.asarray(one.mean_log), np.asarray(full.mean_log), rtol=1e-13)
+        assert np.isnan(np.asarray(one.m2_log)).all()
+    along = mom.moments_along(x[:2], axis=1, spread=False)
+    np.testing.assert_allclose(np.exp(np.asarray(along.mean_log)), stats.gmean(x[:2], axis=1), rtol=1e-13)

@@ -159,13 +159,13 @@ def finalize_moments(method: Method, m: LogMoments, *, policy: Policy, params: d
 
 
 def _moments(data: np.ndarray, nred: int, codes: np.ndarray | None, ngroups: int | None,
-             where: str) -> LogMoments:
+             where: str, spread: bool = True) -> LogMoments:
     if codes is None:
         axes = tuple(range(np.ndim(data) - nred, np.ndim(data)))
-        return moments_along(data, axis=axes, where=where)
+        return moments_along(data, axis=axes, where=where, spread=spread)
     if nred != 1:
         raise ValueError("grouped reductions take exactly one reduced axis")
-    return moments_by_codes(data, codes, int(ngroups or 0), where=where)
+    return moments_by_codes(data, codes, int(ngroups or 0), where=where, spread=spread)
 
 
 def _encode(method: Method, out: dict[str, np.ndarray], names: Sequence[str]) -> np.ndarray:
@@ -212,7 +212,8 @@ def _lazy_moments(method: Method, data: Any, *, nred: int, codes: np.ndarray | N
                   labels: Sequence[Any] | None) -> dict[str, Any]:
     from logstats.accessors.dask import dask_stacked_moments
 
-    st = dask_stacked_moments(data, nred=nred, codes=codes, ngroups=ngroups, where=where, labels=labels)
+    st = dask_stacked_moments(data, nred=nred, codes=codes, ngroups=ngroups, where=where, labels=labels,
+                              spread=method.spread)
     if method.dask == "whole":
         st = st.rechunk(-1)  # the merged moments: small, one value set per group
     names = method.field_names
@@ -357,7 +358,7 @@ def compute(method: Method | str, data: Any, *, nred: int = 1, codes: np.ndarray
     else:
         arr = np.asarray(data)
         try:
-            m = _moments(arr, nred, codes, ngroups, where)
+            m = _moments(arr, nred, codes, ngroups, where, md.spread)
         except ValueError as exc:  # +inf: say in which groups
             if "+inf" not in str(exc) or codes is None:
                 raise
@@ -382,7 +383,7 @@ def compute_columns(method: Method, data: np.ndarray, *, wheres: Sequence[str], 
     params = {**method.defaults(), **params}
     params.pop("detection_limit", None)
     try:
-        m = _moments(data, 1, codes, ngroups, "the input")
+        m = _moments(data, 1, codes, ngroups, "the input", method.spread)
     except ValueError as exc:
         if "+inf" not in str(exc):
             raise

@@ -21,16 +21,16 @@ __all__ = ["dask_stacked_moments"]
 _NF = len(FIELDS)
 
 
-def _block_moments(block: np.ndarray, *, nred: int, where: str) -> np.ndarray:
+def _block_moments(block: np.ndarray, *, nred: int, where: str, spread: bool = True) -> np.ndarray:
     axes = tuple(range(block.ndim - nred, block.ndim))
-    st = moments_along(block, axis=axes, where=where).stack()
+    st = moments_along(block, axis=axes, where=where, spread=spread).stack()
     return st.reshape(block.shape[: block.ndim - nred] + (1,) * nred + (_NF,))
 
 
 def _block_moments_codes(block: np.ndarray, codes: np.ndarray, *, ngroups: int, where: str,
-                         labels: Any = None) -> np.ndarray:
+                         labels: Any = None, spread: bool = True) -> np.ndarray:
     try:
-        st = moments_by_codes(block, codes.reshape(-1), ngroups, where=where).stack()
+        st = moments_by_codes(block, codes.reshape(-1), ngroups, where=where, spread=spread).stack()
     except ValueError as exc:  # +inf: say in which groups, as the in-memory path does
         if "+inf" not in str(exc) or labels is None:
             raise
@@ -52,7 +52,7 @@ def _merge(block: np.ndarray, axis: Any = None, keepdims: bool = True, **_: Any)
 
 
 def dask_stacked_moments(data: Any, *, nred: int, codes: np.ndarray | None, ngroups: int | None,
-                         where: str, labels: Any = None) -> Any:
+                         where: str, labels: Any = None, spread: bool = True) -> Any:
     """Per-block log-moments merged in a tree. ``labels`` (the group labels, in code order) let a
     refusal of ``+inf`` name the groups that hold it."""
     import dask.array as da
@@ -65,6 +65,7 @@ def dask_stacked_moments(data: Any, *, nred: int, codes: np.ndarray | None, ngro
             _block_moments,
             nred=nred,
             where=where,
+            spread=spread,
             chunks=lead_chunks + block_axes_chunks + ((_NF,),),
             new_axis=nd,
             dtype=np.float64,
@@ -83,6 +84,7 @@ def dask_stacked_moments(data: Any, *, nred: int, codes: np.ndarray | None, ngro
             codes_da,
             ngroups=g,
             where=where,
+            spread=spread,
             labels=list(labels) if labels is not None else None,
             chunks=lead_chunks + ((1,) * len(data.chunks[-1]), (g,), (_NF,)),
             new_axis=[nd, nd + 1],

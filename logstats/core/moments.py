@@ -144,7 +144,8 @@ ALONG_CHUNK = 1 << 18
 
 
 def moments_along(values: Any, axis: int | Sequence[int] | None = None, *, where: str = "the input",
-                  chunk_values: int = ALONG_CHUNK, threads: int | None = None) -> LogMoments:
+                  chunk_values: int = ALONG_CHUNK, threads: int | None = None,
+                  spread: bool = True) -> LogMoments:
     """Log-moments of ``values`` reduced over ``axis`` (an int, a tuple, or None for all).
 
     Uses numpy's summation and the corrected two-pass formula, so cancellation (values such as
@@ -159,17 +160,20 @@ def moments_along(values: Any, axis: int | Sequence[int] | None = None, *, where
     ``threads`` (default: up to :data:`MAX_THREADS` for inputs of at least :data:`THREAD_MIN_VALUES`
     values, when called from the main thread) spreads the blocks over that many threads; ``1`` keeps
     the call on the calling thread. The numbers do not depend on it beyond rounding.
+
+    ``spread=False`` computes counts and means only (``m2_log`` is NaN): one pass over each block
+    instead of two, for statistics of location alone (the geometric mean).
     """
     arr = np.asarray(values)
     axes = tuple(range(arr.ndim)) if axis is None else normalize_axes(axis, arr.ndim)
     if arr.dtype.kind not in "fiu" or arr.dtype.itemsize > 8:
         arr = as_float_array(arr, where=where)  # objects, booleans (refused), long double, ...
     if arr.ndim == 0:  # one value: its moments over an axis of length 1
-        m = _moments_in_memory_order(arr.reshape(1), (0,), where, 1, 1)
+        m = _moments_in_memory_order(arr.reshape(1), (0,), where, 1, 1, spread)
     elif arr.size == 0 or not axes:  # nothing to block: empty input, or no reduction at all
         m = _moments_along(to_logs(arr, where=where), axes, own_logs=True)
     else:
-        m = _moments_in_memory_order(arr, axes, where, max(int(chunk_values), 1), threads)
+        m = _moments_in_memory_order(arr, axes, where, max(int(chunk_values), 1), threads, spread)
 
     def of_logs(z: np.ndarray) -> LogMoments:
         return _moments_along(LoggedValues(z, np.isnan(z), np.zeros(z.shape, dtype=bool)), axes)
@@ -208,7 +212,7 @@ def _memory_view(arr: np.ndarray, axes: tuple[int, ...]) -> tuple[np.ndarray, li
 
 
 def _moments_in_memory_order(arr: np.ndarray, axes: tuple[int, ...], where: str, chunk: int,
-                             threads: int | None) -> LogMoments:
+                             threads: int | None, spread: bool = True) -> LogMoments:
     """Blocked, copy-free form of :func:`_moments_along` (see :func:`moments_along`)."""
     v, red, kept_order = _memory_view(arr, axes)
     if v.ndim == 0:  # every axis has length 1: one value, reduced over one axis of length 1
@@ -235,7 +239,8 @@ def _moments_in_memory_order(arr: np.ndarray, axes: tuple[int, ...], where: str,
             if split == 0:
                 for s in range(lo, hi, step):
                     sl = slice(s, min(s + step, hi))
-                    acc.add(() if red[0] else (sl,), *_block_moments(v[sl], buf, brd, isfloat, arr, where))
+                    acc.add(() if red[0] else (sl,),
+                            *_block_moments(v[sl], buf, brd, isfloat, arr, where, spread))
                 return
             for i0 in range(lo, hi):
                 for rest in np.ndindex(*shape[1:split]):
@@ -244,7 +249,7 @@ def _moments_in_memory_order(arr: np.ndarray, axes: tuple[int, ...], where: str,
                     for s in range(0, shape[split], step):
                         sl = slice(s, s + step)
                         out = out_lead + ((sl,) if not red[split] else ())
-                        acc.add(out, *_block_moments(v[idx + (sl,)], buf, brd, isfloat, arr, where))
+                        acc.add(out, *_block_moments(v[idx + (sl,)], buf, brd, isfloat, arr, where, spread))
 
     nthreads = _threads_for(threads, v.size, shape[0], step if split == 0 else 1,
                             int(np.prod(kept_shape)), shared=not red[0])
@@ -303,9 +308,10 @@ def _threads_for(threads: int | None, size: int, first: int, unit: int, kept: in
 
 
 def _block_moments(block: np.ndarray, buf: np.ndarray, rb: tuple[int, ...], isfloat: bool, arr: np.ndarray,
-                   where: str) -> tuple[Any, ...]:
+                   where: str, spread: bool = True) -> tuple[Any, ...]:
     """Two-pass moments of one block over its axes ``rb``: (n, mean, m2, n_missing, n_nonpositive);
-    the counts of excluded values are None when there are none. Call under ``np.errstate``."""
+    the counts of excluded values are None when there are none; ``spread=False``: m2 is NaN and the
+    second pass is skipped. Call under ``np.errstate``."""
     y = buf[: block.size].reshape(block.shape)
     if block.dtype == np.float64:
         np.log(block, out=y)
@@ -316,6 +322,8 @@ def _block_moments(block: np.ndarray, buf: np.ndarray, rb: tuple[int, ...], isfl
     count = int(np.prod([block.shape[i] for i in rb], dtype=np.int64))
     if np.isfinite(s).all():  # the common case: every log finite (NaN or ±inf would spoil the sum)
         mean = s / count
+        if not spread:
+            return count, mean, np.full(np.shape(mean), np.nan), None, None
         np.subtract(y, np.expand_dims(mean, rb), out=y)
         corr = y.sum(axis=rb)
         m2 = _sum_squares(y, rb) - corr * corr / count
@@ -331,6 +339,8 @@ def _block_moments(block: np.ndarray, buf: np.ndarray, rb: tuple[int, ...], isfl
     nz = np.maximum(n, 1)
     np.copyto(y, 0.0, where=bad)
     mean = y.sum(axis=rb) / nz
+    if not spread:
+        return n, mean, np.full(np.shape(mean), np.nan), missing.sum(axis=rb), nonpositive.sum(axis=rb)
     np.subtract(y, np.expand_dims(mean, rb), out=y)
     np.copyto(y, 0.0, where=bad)
     corr = y.sum(axis=rb)
@@ -484,14 +494,15 @@ def chunk_size(rows: int, ngroups: int, *, most: int = CHUNK_ROWS) -> int:
 
 
 def moments_by_codes(values: Any, codes: Any, ngroups: int, *, where: str = "the input",
-                     chunk_rows: int | None = None) -> LogMoments:
+                     chunk_rows: int | None = None, spread: bool = True) -> LogMoments:
     """Log-moments per group along the **last** axis of ``values``.
 
     ``codes`` (length = last axis) gives each position's group in ``0 .. ngroups-1``; negative codes
     (missing keys) belong to no group. The result has shape ``values.shape[:-1] + (ngroups,)``. One
     scatter-add pass per statistic over all groups at once: no Python loop over groups. Long inputs
     are taken ``chunk_rows`` positions at a time (default :func:`chunk_size`) and the pieces merged with
-    :func:`merge_two`, which keeps the extra memory bounded whatever the length.
+    :func:`merge_two`, which keeps the extra memory bounded whatever the length. ``spread=False``:
+    counts and means only (``m2_log`` NaN), without the deviation passes.
     """
     arr = np.asarray(values)
     codes = np.asarray(codes, dtype=np.intp)
@@ -503,13 +514,14 @@ def moments_by_codes(values: Any, codes: Any, ngroups: int, *, where: str = "the
         chunk_rows = chunk_size(rows, ngroups)
     keyed_all = N == 0 or bool(codes.min() >= 0)
     if N <= chunk_rows:
-        out = _grouped(to_logs(arr, where=where), codes, ngroups, keyed_all=keyed_all)
+        out = _grouped(to_logs(arr, where=where), codes, ngroups, keyed_all=keyed_all, spread=spread)
     else:
         work = np.empty(rows * chunk_rows)  # the deviations of every chunk, in one reused buffer
         out = None
         for start in range(0, N, chunk_rows):
             part = _grouped(to_logs(arr[..., start : start + chunk_rows], where=where),
-                            codes[start : start + chunk_rows], ngroups, keyed_all=keyed_all, work=work)
+                            codes[start : start + chunk_rows], ngroups, keyed_all=keyed_all, work=work,
+                            spread=spread)
             out = part if out is None else merge_two(out, part)
     assert out is not None
     return _refine_tight(out, arr, lambda z: log_moments_by_codes(z, codes, ngroups),
@@ -608,14 +620,16 @@ def _runs(ik: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
     return starts, lengths
 
 
-def _grouped_runs(ik: np.ndarray, yk: np.ndarray, size: int, starts: np.ndarray,
-                  lengths: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _grouped_runs(ik: np.ndarray, yk: np.ndarray, size: int, starts: np.ndarray, lengths: np.ndarray,
+                  spread: bool = True) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Count, mean and m2 per slot (corrected two-pass), summing run by run (see :func:`_runs`)."""
     rc = ik[starts]
     n = np.zeros(size, dtype=np.intp)
     np.add.at(n, rc, lengths)
     with np.errstate(divide="ignore", invalid="ignore"):
         mean = _scatter_sum(rc, size, np.add.reduceat(yk, starts)) / n
+        if not spread:
+            return n, mean, np.full(size, np.nan)
         d = np.repeat(mean[rc], lengths)
         np.subtract(yk, d, out=d)  # deviations from the first-pass group mean, in one buffer
         corr = _scatter_sum(rc, size, np.add.reduceat(d, starts))
@@ -625,12 +639,14 @@ def _grouped_runs(ik: np.ndarray, yk: np.ndarray, size: int, starts: np.ndarray,
     return n, mean, np.maximum(m2, 0.0)
 
 
-def _grouped_scatter(ik: np.ndarray, yk: np.ndarray, size: int,
-                     work: np.ndarray | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _grouped_scatter(ik: np.ndarray, yk: np.ndarray, size: int, work: np.ndarray | None,
+                     spread: bool = True) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Count, mean and m2 per slot (corrected two-pass), one scatter-add pass per sum."""
     n = _scatter_sum(ik, size)
     with np.errstate(divide="ignore", invalid="ignore"):
         mean = _scatter_sum(ik, size, yk) / n
+        if not spread:
+            return n, mean, np.full(size, np.nan)
         if work is not None and work.size >= ik.size:
             d = np.take(mean, ik, out=work[: ik.size], mode="clip")  # ik is in range: no check needed
         else:
@@ -644,7 +660,7 @@ def _grouped_scatter(ik: np.ndarray, yk: np.ndarray, size: int,
 
 
 def _grouped(lv: LoggedValues, codes: Any, ngroups: int, *, keyed_all: bool | None = None,
-             work: np.ndarray | None = None) -> LogMoments:
+             work: np.ndarray | None = None, spread: bool = True) -> LogMoments:
     """Corrected two-pass moments per group (``keyed_all``: no negative code; computed when None).
 
     ``work``, a float buffer of at least as many values, receives the deviations (reused across chunks).
@@ -683,9 +699,9 @@ def _grouped(lv: LoggedValues, codes: Any, ngroups: int, *, keyed_all: bool | No
         ik, yk = idx[valid], yf[valid]
     runs = _runs(ik)
     if runs is not None:
-        n, mean, m2 = _grouped_runs(ik, yk, size, *runs)
+        n, mean, m2 = _grouped_runs(ik, yk, size, *runs, spread=spread)
     else:
-        n, mean, m2 = _grouped_scatter(ik, yk, size, work)
+        n, mean, m2 = _grouped_scatter(ik, yk, size, work, spread=spread)
     mean, m2 = _empty_to_nan(n, mean, m2)
 
     def count(mask: np.ndarray, anywhere: bool) -> np.ndarray:

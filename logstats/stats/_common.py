@@ -220,3 +220,46 @@ class GroupSums:
 def group_sum(w: np.ndarray, slot: np.ndarray, size: int) -> np.ndarray:
     """``np.bincount(slot, weights=w, minlength=size)``, run by run when ``slot`` is sorted."""
     return GroupSums(slot, size).sum(w)
+
+
+def occurring_keys(key: np.ndarray, space: int) -> tuple[np.ndarray, np.ndarray]:
+    """``np.unique(key, return_inverse=True)`` (inverse as intp) for integer keys in ``0 .. space-1``:
+    by marking which keys occur (linear time) when the key space is not much larger than the data, else
+    by numpy's sort."""
+    key = np.asarray(key)
+    if key.size and space <= max(4 * key.size, 1 << 16) and key.min() >= 0 and key.max() < space:
+        present = np.zeros(int(space), dtype=bool)
+        present[key] = True
+        lookup = np.cumsum(present, dtype=np.intp)
+        lookup -= 1
+        return np.flatnonzero(present).astype(np.int64), lookup[key]
+    uniq, inv = np.unique(key, return_inverse=True)
+    return uniq, inv.ravel().astype(np.intp)
+
+
+def unique_rows(rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``np.unique(rows, axis=0, return_inverse=True)`` for non-negative integer rows: the columns are
+    packed into one int64 key (mixed radix) and :func:`occurring_keys` finds the distinct keys, which is
+    faster than numpy's row sort; the same rows, in the same (lexicographic) order."""
+    rows = np.asarray(rows, dtype=np.int64)
+    if rows.size == 0 or rows.ndim != 2:
+        uniq, inv = np.unique(rows, axis=0, return_inverse=True)
+        return uniq, inv.ravel().astype(np.intp)
+    widths = rows.max(axis=0) + 1
+    space = 1
+    for w in widths.tolist():
+        space *= int(w)
+    if space >= 2**62 or rows.min() < 0:
+        uniq, inv = np.unique(rows, axis=0, return_inverse=True)
+        return uniq, inv.ravel().astype(np.intp)
+    key = rows[:, 0].copy()
+    for c in range(1, rows.shape[1]):
+        key *= widths[c]
+        key += rows[:, c]
+    ukeys, inv = occurring_keys(key, space)
+    uniq = np.empty((ukeys.size, rows.shape[1]), dtype=np.int64)
+    rest = ukeys.copy()
+    for c in range(rows.shape[1] - 1, -1, -1):
+        uniq[:, c] = rest % widths[c]
+        rest //= widths[c]
+    return uniq, inv

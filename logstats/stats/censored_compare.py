@@ -16,7 +16,7 @@ from scipy import special, stats
 
 from logstats.core.moments import moments_by_codes
 from logstats.core.transform import check_nonpositive, to_logs
-from logstats.stats._common import _LOG_2PI, _detection_limits, _values_1d
+from logstats.stats._common import _LOG_2PI, _detection_limits, _values_1d, occurring_keys
 from logstats.stats.censored import _mills, _t_quantile
 from logstats.stats.compare import _check_codes, _check_level, _check_method, adjust_p
 
@@ -483,7 +483,7 @@ def censored_replicate_fold_change(values: Any, level_codes: Any, n_levels: int,
     L, S, R = int(n_levels), int(n_strata), max(int(n_replicates), 1)
     limit = np.broadcast_to(np.asarray(detection_limit, dtype=np.float64), x.shape)
     keyed = (lc >= 0) & (sc >= 0) & (rc >= 0)
-    uniq, unit = np.unique(((sc * L + lc) * R + rc)[keyed], return_inverse=True)
+    uniq, unit = occurring_keys(((sc * L + lc) * R + rc)[keyed], S * L * R)
     fit = fit_lognormal(x[keyed], unit.ravel(), len(uniq), detection_limit=limit[keyed],
                         nonpositive=nonpositive, skipna=skipna)
     mu = np.asarray(fit["mu"], dtype=np.float64)

@@ -38,6 +38,7 @@ from scipy import stats
 
 from logstats.core.moments import LogMoments, log_moments_by_codes, moments_by_codes
 from logstats.core.transform import check_nonpositive
+from logstats.stats._common import occurring_keys
 from logstats.stats.estimate import t_quantile
 
 __all__ = [
@@ -572,10 +573,10 @@ def fold_change_codes(
         rc = _check_codes(replicate_codes, N, R, "replicate_codes", "n_replicates")
         has_rep = keyed & (rc >= 0)
         key = base[has_rep] * np.int64(R) + rc[has_rep]
-        uniq, inv = np.unique(key, return_inverse=True)
+        uniq, inv = occurring_keys(key, SL * R)
         K = uniq.size
         codes = np.full(N, -1, dtype=np.intp)
-        codes[has_rep] = inv.ravel()
+        codes[has_rep] = inv
         rep = moments_by_codes(vals, codes, K, where=where)  # one pass: every (stratum, level, replicate)
         n_no_rep = np.bincount(base[keyed & (rc < 0)], minlength=SL).astype(np.int64)
         return fold_change_moments(rep, (uniq // R).astype(np.intp), L, ref, n_strata=S,

@@ -16,7 +16,7 @@ import numpy as np
 from scipy import stats
 
 from logstats.core.transform import check_nonpositive, to_logs
-from logstats.stats._common import _count, _group_codes, _values_1d
+from logstats.stats._common import _count, _group_codes, _values_1d, occurring_keys, unique_rows
 from logstats.stats.estimate import _check_level
 
 __all__ = ["plan_power", "variance_components"]
@@ -71,7 +71,7 @@ def _refine(parent: np.ndarray, child: np.ndarray, nparent: int) -> tuple[np.nda
     width = int(child.max()) + 1
     if nparent * width < 2**62:
         key = parent.astype(np.int64) * width + child
-        _, inv = np.unique(key, return_inverse=True)
+        _, inv = occurring_keys(key, nparent * width)
     else:  # codes too large to pack into one int64 key
         _, inv = np.unique(np.stack([parent, child], axis=1), axis=0, return_inverse=True)
     inv = inv.reshape(-1).astype(np.intp)
@@ -498,7 +498,7 @@ def nested_fold_change(values: Any, level_codes: Any, n_levels: int, reference: 
     unit_y = lv.y[use]
     counts: dict[str, np.ndarray] = {}
     for depth in range(len(nested_codes) - 1, 0, -1):  # deepest level first, up to just inside the top
-        uniq, codes = np.unique(path[:, : depth + 2], axis=0, return_inverse=True)
+        uniq, codes = unique_rows(path[:, : depth + 2])
         unit_y = np.asarray(log_moments_by_codes(unit_y, codes.ravel(), len(uniq)).mean_log)
         counts[f"n_{names[depth]}"] = np.bincount(uniq[:, 0], minlength=SL).astype(np.int64)
         path = uniq[:, : depth + 1]
