@@ -328,10 +328,10 @@ class _PandasBase(FigureMethods, ReportMethods):
                            where=_where(name))
             return pd.Series(y, index=self._obj.index, name=self._obj.name)
         df = self._obj
-        out = df.copy()
+        out = _copy_sharing(df)
         for col in value_columns(df, columns):
-            out[col] = log_values(column_values(df[col], col), base=base, nonpositive=nonpositive,
-                                  where=_where(col))
+            y = log_values(column_values(df[col], col), base=base, nonpositive=nonpositive, where=_where(col))
+            out[col] = pd.Series(y, index=out.index, copy=False)  # a new array of ours: no second copy
         return out
 
     def exp(self, *, base: Any = "e", columns: Any = None) -> Any:
@@ -341,10 +341,19 @@ class _PandasBase(FigureMethods, ReportMethods):
             return pd.Series(exp_values(column_values(self._obj, name), base=base, where=_where(name)),
                              index=self._obj.index, name=self._obj.name)
         df = self._obj
-        out = df.copy()
+        out = _copy_sharing(df)
         for col in value_columns(df, columns):
-            out[col] = exp_values(column_values(df[col], col), base=base, where=_where(col))
+            y = exp_values(column_values(df[col], col), base=base, where=_where(col))
+            out[col] = pd.Series(y, index=out.index, copy=False)
         return out
+
+
+def _copy_sharing(df: pd.DataFrame) -> pd.DataFrame:
+    """A copy of ``df`` whose columns are replaced one by one: under copy-on-write (pandas 3, or the
+    option set in pandas 2) the columns left alone share the input's memory, as pandas' own methods do;
+    otherwise a deep copy, so that the input can never be modified through the result."""
+    cow = int(pd.__version__.split(".")[0]) >= 3 or pd.get_option("mode.copy_on_write") is True
+    return df.copy(deep=not cow)
 
 
 def fold_change_frame(results: list[tuple[Hashable, dict[str, np.ndarray]]], level_index: pd.Index, ref: int,

@@ -132,7 +132,9 @@ def to_logs(values: Any, *, where: str = "the input") -> LoggedValues:
     x = as_float_array(values, where=where)
     with np.errstate(divide="ignore", invalid="ignore"):
         y = np.log(x)
-    if np.isfinite(y).all():  # the common case, one scan: nothing missing, non-positive or infinite
+    # the common case: nothing missing, non-positive or infinite. One sum tells (NaN and ±inf spoil it;
+    # logs are below 745 in size, so no sum of finite logs overflows): no mask is built
+    if np.isfinite(np.sum(y)):
         return LoggedValues(y=y, missing=np.zeros(y.shape, dtype=bool),
                             nonpositive=np.zeros(y.shape, dtype=bool), clean=True)
     posinf = y == np.inf  # only log(+inf) is +inf
@@ -161,7 +163,7 @@ def log_values(
     check_nonpositive(nonpositive)
     factor = check_base(base)
     lv = to_logs(values, where=where)
-    nbad = int(lv.nonpositive.sum())
+    nbad = 0 if lv.clean else int(np.count_nonzero(lv.nonpositive))
     if nbad and nonpositive == "raise":
         raise ValueError(nonpositive_message(where, nbad))
     if factor == 1.0:
