@@ -110,20 +110,30 @@ def _int_codes(key: pd.Series, sort: bool) -> tuple[np.ndarray, pd.Index] | None
     span = hi - lo + 1
     if span > max(2 * n, 1 << 16):
         return None
-    codes = np.empty(n, dtype=np.intp)
-    np.subtract(a, lo, out=codes, dtype=np.intp, casting="unsafe")  # exact: span fits in intp
-    if bool((codes[1:] >= codes[:-1]).all()):  # sorted keys (tables written group by group):
-        present = np.zeros(span, dtype=bool)  # the values at the changes are all there is
-        present[codes[np.r_[0, np.flatnonzero(codes[1:] != codes[:-1]) + 1]]] = True
+    if lo == 0 and a.dtype == np.intp:
+        codes = a  # the key itself is its codes if every value occurs (read-only below: never written)
+    else:
+        codes = np.empty(n, dtype=np.intp)
+        np.subtract(a, lo, out=codes, dtype=np.intp, casting="unsafe")  # exact: span fits in intp
+    head = min(n, 4096)  # most unsorted keys show it in their first rows: no full comparison
+    if bool((codes[1:head] >= codes[: head - 1]).all()) and bool((codes[1:] >= codes[:-1]).all()):
+        present = np.zeros(span, dtype=bool)  # sorted keys (tables written group by group): the
+        present[codes[np.r_[0, np.flatnonzero(codes[1:] != codes[:-1]) + 1]]] = True  # changes tell
     else:
         present = np.bincount(codes, minlength=span).astype(bool)
     occurs = np.flatnonzero(present)
     if len(occurs) < span:
         lookup = np.cumsum(present, dtype=np.intp) - 1
-        step = 1 << 20
-        for start in range(0, n, step):  # remap in place, a block at a time: no second codes array
-            block = codes[start : start + step]
-            np.take(lookup, block, out=block)
+        if codes is a:
+            codes = np.take(lookup, a)
+        else:
+            step = 1 << 20
+            for start in range(0, n, step):  # remap in place, a block at a time: no second codes array
+                block = codes[start : start + step]
+                np.take(lookup, block, out=block)
+    if codes is a:
+        codes = a.view()
+        codes.flags.writeable = False
     return codes, pd.Index((occurs + lo).astype(dtype))
 
 
