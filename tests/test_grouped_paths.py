@@ -151,3 +151,25 @@ def test_location_only_moments_equal_the_full_pass(layout):
         assert np.isnan(np.asarray(one.m2_log)).all()
     along = mom.moments_along(x[:2], axis=1, spread=False)
     np.testing.assert_allclose(np.exp(np.asarray(along.mean_log)), stats.gmean(x[:2], axis=1), rtol=1e-13)
+
+
+@pytest.mark.parametrize("bad", [np.nan, 0.0, -2.0, -np.inf, np.inf, None])
+def test_logs_taken_block_by_block_find_bad_values_in_any_block(bad):
+    """Long input is logged a block at a time with the blocks' sums telling clean input; a bad value in
+    the last block must still be found (numpy's np.log and masks are the reference)."""
+    from logstats.core import transform
+
+    x = np.random.default_rng(9).lognormal(size=3 * transform.LOG_BLOCK + 17)
+    if bad is not None:
+        x[-3] = bad
+    if bad == np.inf:
+        with pytest.raises(ValueError, match=r"\+inf"):
+            transform.to_logs(x, where="column 'x'")
+        return
+    lv = transform.to_logs(x)
+    valid = np.isfinite(x) & (x > 0)
+    np.testing.assert_array_equal(lv.y[valid], np.log(x[valid]))
+    assert np.isnan(lv.y[~valid]).all()
+    assert lv.clean == (bad is None)
+    assert int(lv.nonpositive.sum()) == int(np.count_nonzero(x <= 0))
+    assert int(lv.missing.sum()) == int(np.count_nonzero(np.isnan(x)))

@@ -122,6 +122,26 @@ class LoggedValues:
         return ~(self.missing | self.nonpositive)
 
 
+#: Values logged and summed at a time by :func:`to_logs` (the sum reads the block while it is in cache).
+LOG_BLOCK = 1 << 16
+
+
+def _log_and_sum(x: np.ndarray) -> tuple[np.ndarray, float]:
+    """``np.log(x)`` and the sum of the logs, block by block for long contiguous input."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        if x.size <= 2 * LOG_BLOCK or not x.flags.c_contiguous:
+            y = np.log(x)
+            return y, float(np.sum(y))
+        y = np.empty(x.shape, dtype=np.result_type(x.dtype, np.float16))
+        xf, yf = x.reshape(-1), y.reshape(-1)
+        total = 0.0
+        for start in range(0, xf.size, LOG_BLOCK):
+            part = yf[start : start + LOG_BLOCK]
+            np.log(xf[start : start + LOG_BLOCK], out=part)
+            total += float(np.add.reduce(part))
+        return y, total
+
+
 def to_logs(values: Any, *, where: str = "the input") -> LoggedValues:
     """Natural logs of ``values`` with the missing and non-positive entries marked.
 
@@ -130,11 +150,10 @@ def to_logs(values: Any, *, where: str = "the input") -> LoggedValues:
     numpy's RuntimeWarnings never escape. One log pass and no full-size temporaries beyond the masks.
     """
     x = as_float_array(values, where=where)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        y = np.log(x)
-    # the common case: nothing missing, non-positive or infinite. One sum tells (NaN and ±inf spoil it;
-    # logs are below 745 in size, so no sum of finite logs overflows): no mask is built
-    if np.isfinite(np.sum(y)):
+    y, total = _log_and_sum(x)
+    # the common case: nothing missing, non-positive or infinite. The sum of the logs tells (NaN and
+    # ±inf spoil it; logs are below 745 in size, so no sum of finite logs overflows): no mask is built
+    if np.isfinite(total):
         return LoggedValues(y=y, missing=np.zeros(y.shape, dtype=bool),
                             nonpositive=np.zeros(y.shape, dtype=bool), clean=True)
     posinf = y == np.inf  # only log(+inf) is +inf
