@@ -223,6 +223,11 @@ def test_registration_is_idempotent_and_optional(monkeypatch):
     {"replicate": "well"},
     {"replicate": "day", "paired": True, "adjust": "bh"},
     {"within": "line", "equivalence": (0.8, 1.25)},
+    # the loading paths (the censored regression and the nested means need every value of a level)
+    {"detection_limit": 4.0},
+    {"detection_limit": "dl", "within": "line"},
+    {"replicate": ["day", "well"]},
+    {"replicate": "well", "detection_limit": "dl"},
 ])
 def test_fold_change_equals_pandas(kw):
     # reference: the pandas accessor on the same rows (itself checked against scipy in test_fold_change)
@@ -233,9 +238,17 @@ def test_fold_change_equals_pandas(kw):
         "line": rng.choice(["L1", "L2"], n),
         "x": rng.lognormal(2.0, 0.7, n), "y": rng.lognormal(1.0, 0.3, n)})
     df["well"] = df["arm"] + "-" + df["day"].astype(str)
+    df["dl"] = np.where(df["day"] < 2, 4.0, 6.0)  # two detection limits, by day
     ddf = dd.from_pandas(df, npartitions=6)
     with raise_if_dask_computes():
         lazy = ddf.logstats.fold_change(by="arm", reference="ctl", columns=["x", "y"], **kw)
     got = lazy.compute()
     want = df.logstats.fold_change(by="arm", reference="ctl", columns=["x", "y"], **kw)
     pd.testing.assert_frame_equal(got, want, rtol=1e-11, check_index_type=False)
+    assert list(lazy.columns) == list(want.columns)  # the lazy frame's template has the real fields
+
+
+def test_fold_change_detection_limit_refuses_aligned_arrays():
+    ddf = dd.from_pandas(pd.DataFrame({"arm": ["a", "b"] * 10, "x": np.arange(1.0, 21.0)}), npartitions=2)
+    with pytest.raises(TypeError, match="detection_limit= on a dask DataFrame takes a number or a column"):
+        ddf.logstats.fold_change(by="arm", reference="a", detection_limit=np.ones(20))

@@ -579,6 +579,46 @@ def _fold_template(req: _FoldRequest) -> Any:
     return frame.iloc[:0]
 
 
+def _fold_change_loaded(frame: Any, kwargs: dict[str, Any]) -> Any:
+    """The pandas ``fold_change`` on the computed frame (the loading path of the dask accessor)."""
+    return frame.logstats.fold_change(**kwargs)
+
+
+def _loaded_fold_change(ddf: Any, kwargs: dict[str, Any]) -> Any:
+    """A lazy one-partition result of the pandas ``fold_change`` on the whole of ``ddf``.
+
+    The empty template comes from the same call on a tiny invented frame with the same columns (every
+    key two levels of small integers, values 1..8, the reference level 0), so its fields and dtypes are
+    those of the real result."""
+    import warnings
+
+    import dask.dataframe as dd
+    import pandas as pd
+    from dask import delayed
+
+    from logstats.accessors._labels import resolve_keys
+
+    meta = ddf._meta
+    keys = [k for key in (kwargs["by"], kwargs["within"], kwargs["replicate"]) if key is not None
+            for k in (key if isinstance(key, list) else [key])]
+    resolve_keys(meta, keys, keyword="by")  # a KeyError naming the column, as the other paths give
+    tiny = pd.DataFrame(index=range(8))
+    for col in meta.columns:
+        tiny[col] = np.linspace(1.0, 8.0, 8)
+    tiny[kwargs["by"]] = np.repeat([0, 1], 4)
+    for key in keys:
+        if key != kwargs["by"]:
+            tiny[key] = np.tile([0, 1], 4)
+    dl = kwargs["detection_limit"]
+    if isinstance(dl, (str, tuple)) and dl in meta.columns:
+        tiny[dl] = 0.5
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        template = tiny.logstats.fold_change(**{**kwargs, "reference": 0}).iloc[:0]
+    result = delayed(_fold_change_loaded, pure=True)(ddf, kwargs)
+    return dd.from_delayed([result], meta=template, verify_meta=False)
+
+
 class LogstatsDaskFrameAccessor(_DaskFrameBase):
     """Log-scale statistics on a dask DataFrame, computed partition by partition and merged exactly.
 
@@ -613,8 +653,8 @@ class LogstatsDaskFrameAccessor(_DaskFrameBase):
                     paired: bool = False, within: Any = None, equal_var: bool = False,
                     confidence_level: float = 0.95, adjust: str | None = "holm",
                     equivalence: tuple[float, float] | None = None, equivalence_alpha: float = 0.05,
-                    skipna: bool = True, nonpositive: str = "raise", observed: bool = True,
-                    dropna: bool = True, split_every: int | None = None) -> Any:
+                    detection_limit: Any = None, skipna: bool = True, nonpositive: str = "raise",
+                    observed: bool = True, dropna: bool = True, split_every: int | None = None) -> Any:
         """The pandas ``fold_change`` on a dask DataFrame, from per-partition moments (lazy).
 
         Every partition is reduced to log-moments per (``within``..., ``by``[, ``replicate``]); the
@@ -624,6 +664,11 @@ class LogstatsDaskFrameAccessor(_DaskFrameBase):
         ``.compute()`` gives the pandas table. Rows
         whose replicate label is missing are left out with the other missing keys (counted in the
         warning) rather than in ``n_no_replicate``.
+
+        With ``detection_limit=`` (a number or a column label) or nested ``replicate=[outer, ...,
+        inner]`` the values are **loaded**: the censored regression and the nested means need every
+        value of a level at once, so the frame is computed into one pandas DataFrame (still lazily,
+        when the result is computed) and the pandas ``fold_change`` runs on it.
         """
         from dask import delayed
 
@@ -641,9 +686,17 @@ class LogstatsDaskFrameAccessor(_DaskFrameBase):
                 if not isinstance(item, str) and not np.isscalar(item) and not isinstance(item, tuple):
                     raise TypeError(f"{keyword}= on a dask DataFrame takes column labels, not "
                                     f"{type(item).__name__} (compute() the frame to pass aligned arrays)")
-        if isinstance(replicate, list) and len(replicate) > 1:
-            raise ValueError("replicate= with nested levels on a dask DataFrame is not supported; compute() "
-                             "the frame first (the nested means need every value of a replicate)")
+        if detection_limit is not None and not (isinstance(detection_limit, (str, tuple))
+                                                or np.isscalar(detection_limit)):
+            raise TypeError("detection_limit= on a dask DataFrame takes a number or a column label, not "
+                            f"{type(detection_limit).__name__} (compute() the frame to pass aligned arrays)")
+        if detection_limit is not None or (isinstance(replicate, list) and len(replicate) > 1):
+            kwargs = dict(by=by, reference=reference, columns=columns, replicate=replicate, paired=paired,
+                          within=within, equal_var=equal_var, confidence_level=confidence_level,
+                          adjust=adjust, equivalence=equivalence, equivalence_alpha=equivalence_alpha,
+                          detection_limit=detection_limit, skipna=skipna, nonpositive=nonpositive,
+                          observed=observed, dropna=dropna)
+            return _loaded_fold_change(self._obj, kwargs)
         if isinstance(replicate, list):
             replicate = replicate[0]
         keys = within_list + [by] + ([replicate] if replicate is not None else [])
