@@ -329,7 +329,8 @@ def _decades(axis: Any) -> float:
 
 
 class _LogMajorLocator:
-    """Powers of ten; over less than about half a decade, evenly spaced plain values instead."""
+    """Powers of ten; over less than about half a decade, evenly spaced plain values instead (at least
+    three of them in view)."""
 
     def __new__(cls) -> Any:
         from matplotlib import ticker
@@ -337,7 +338,7 @@ class _LogMajorLocator:
         class Locator(ticker.Locator):
             def __init__(self) -> None:
                 self._log = ticker.LogLocator(base=10.0)
-                self._lin = ticker.MaxNLocator(nbins=4, steps=[1, 2, 2.5, 5, 10])
+                self._lin = ticker.MaxNLocator(nbins=5, steps=[1, 2, 2.5, 5, 10])
 
             def set_axis(self, axis: Any) -> None:
                 super().set_axis(axis)
@@ -352,7 +353,11 @@ class _LogMajorLocator:
             def tick_values(self, vmin: float, vmax: float) -> Any:
                 lo, hi = sorted((vmin, vmax))
                 if lo > 0 and hi / lo < 10 ** 0.6:
-                    ticks = np.asarray(self._lin.tick_values(lo, hi), dtype=float)
+                    for nbins in (5, 6, 8):  # at least three labels inside the view (not "40, 60")
+                        self._lin.set_params(nbins=nbins)
+                        ticks = np.asarray(self._lin.tick_values(lo, hi), dtype=float)
+                        if np.count_nonzero((ticks >= lo) & (ticks <= hi)) >= 3:
+                            break
                     return ticks[ticks > 0]
                 return self._log.tick_values(vmin, vmax)
 

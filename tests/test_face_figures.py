@@ -97,6 +97,7 @@ def test_plain_log_ticks_on_narrow_data():
     (12.0, 240.0, ["20", "30", "50", "100", "200"]),          # 1.3 decades: 2-3-5
     (5.0, 400.0, ["5", "10", "20", "50", "100", "200"]),      # 1.9 decades: 2-5
     (120.0, 180.0, ["120", "140", "160", "180"]),             # a fraction of a decade: even steps
+    (21.0, 66.0, ["30", "40", "50", "60"]),                   # at least three of them (not "40, 60")
     (0.5, 5000.0, ["1", "10", "100", "1000"]),               # wide: powers of ten, still plain
 ])
 def test_log_tick_labels_follow_the_span(lo, hi, expected):
