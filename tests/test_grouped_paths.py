@@ -10,6 +10,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from logstats.core import groups
 from logstats.core import moments as mom
 
 
@@ -62,7 +63,7 @@ def test_run_path_and_scatter_path_agree_with_leading_axes(layout, monkeypatch):
     x = rng.lognormal(0.0, 1.0, (3, n))
     x[1, ::97] = np.nan
     runs = mom.moments_by_codes(x, codes, ngroups)
-    monkeypatch.setattr(mom, "RUNS_MIN", 10**12)
+    monkeypatch.setattr(groups, "RUNS_MIN", 10**12)
     scatter = mom.moments_by_codes(x, codes, ngroups)
     for field in ("n", "mean_log", "m2_log", "n_missing"):
         np.testing.assert_allclose(np.asarray(getattr(runs, field)), np.asarray(getattr(scatter, field)),
@@ -73,34 +74,41 @@ def test_run_path_and_scatter_path_agree_with_leading_axes(layout, monkeypatch):
 
 
 def test_runs_are_found_only_when_long():
-    assert mom._runs(np.zeros(10, dtype=np.intp)) is None  # too short to be worth it
+    assert groups.find_runs(np.zeros(10, dtype=np.intp)) is None  # too short to be worth it
     sorted_codes = np.repeat(np.arange(100, dtype=np.intp), 100)
-    starts, lengths = mom._runs(sorted_codes)
+    starts, lengths = groups.find_runs(sorted_codes)
     np.testing.assert_array_equal(starts, np.arange(0, 10_000, 100))
     np.testing.assert_array_equal(lengths, np.full(100, 100))
-    assert mom._runs(np.arange(10_000, dtype=np.intp) % 7) is None  # changes at every row
+    assert groups.find_runs(np.arange(10_000, dtype=np.intp) % 7) is None  # changes at every row
 
 
 @settings(max_examples=40, deadline=None)
 @given(n=st.integers(1, 3000), size=st.integers(1, 50), ordered=st.booleans(), seed=st.integers(0, 2**31 - 1))
 def test_group_sums_equal_bincount_and_take(n, size, ordered, seed):
-    """The run-by-run sums of the order statistics (Shapiro-Wilk, Box-Cox) against numpy's own
-    ``np.bincount(weights=)`` and ``v[slot]``, with groups left empty anywhere (first, last, between)."""
-    from logstats.stats._common import GroupSums
+    """Both paths of the grouped sums (run by run, and one scatter per value) against numpy's own
+    ``np.bincount(weights=)`` and ``v[slot]``, with groups left empty anywhere (first, last, between);
+    each path is forced in turn through the module's thresholds."""
+    from logstats.core.groups import GroupSums
 
     rng = np.random.default_rng(seed)
     slot = rng.integers(0, size, n)
     if ordered:
         slot = np.sort(slot)
     w = rng.normal(size=n)
-    sums = GroupSums(slot, size)
-    assert sums.runs == (ordered or bool((slot[1:] >= slot[:-1]).all()))
-    np.testing.assert_allclose(sums.sum(w), np.bincount(slot, weights=w, minlength=size), rtol=1e-12,
-                               atol=1e-12)
-    np.testing.assert_array_equal(sums.counts, np.bincount(slot, minlength=size))
     v = rng.normal(size=size)
-    np.testing.assert_array_equal(sums.spread(v), v[slot])
-    np.testing.assert_array_equal(sums.spread(v, np.empty(n)), v[slot])
+    saved = groups.RUNS_MIN, groups.RUN_LENGTH_MIN
+    try:
+        for runs_min, run_length, path in ((0, 1, True), (10**12, 4, False)):
+            groups.RUNS_MIN, groups.RUN_LENGTH_MIN = runs_min, run_length
+            sums = GroupSums(slot, size)
+            assert sums.runs == path
+            np.testing.assert_allclose(sums.sum(w), np.bincount(slot, weights=w, minlength=size),
+                                       rtol=1e-12, atol=1e-12)
+            np.testing.assert_array_equal(sums.counts, np.bincount(slot, minlength=size))
+            np.testing.assert_array_equal(sums.spread(v), v[slot])
+            np.testing.assert_array_equal(sums.spread(v, np.empty(n)), v[slot])
+    finally:
+        groups.RUNS_MIN, groups.RUN_LENGTH_MIN = saved
 
 
 @settings(max_examples=40, deadline=None)
@@ -109,7 +117,7 @@ def test_group_sums_equal_bincount_and_take(n, size, ordered, seed):
 def test_occurring_keys_and_unique_rows_equal_numpy_unique(n, widths, seed):
     """Replicate and nesting keys are found by marking which occur; numpy's np.unique (sorting) is the
     reference, for flat keys and for rows (np.unique(axis=0))."""
-    from logstats.stats._common import occurring_keys, unique_rows
+    from logstats.core.groups import occurring_keys, unique_rows
 
     rng = np.random.default_rng(seed)
     rows = np.stack([rng.integers(0, w, n) for w in widths], axis=1).astype(np.int64)

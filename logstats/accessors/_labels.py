@@ -10,6 +10,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from logstats.core.groups import GroupSums, occurring_keys
 from logstats.core.transform import LogstatsWarning
 
 __all__ = ["Groups", "column_values", "factorize_keys", "is_label_of", "is_limit_label", "resolve_keys",
@@ -115,12 +116,7 @@ def _int_codes(key: pd.Series, sort: bool) -> tuple[np.ndarray, pd.Index] | None
     else:
         codes = np.empty(n, dtype=np.intp)
         np.subtract(a, lo, out=codes, dtype=np.intp, casting="unsafe")  # exact: span fits in intp
-    head = min(n, 4096)  # most unsorted keys show it in their first rows: no full comparison
-    if bool((codes[1:head] >= codes[: head - 1]).all()) and bool((codes[1:] >= codes[:-1]).all()):
-        present = np.zeros(span, dtype=bool)  # sorted keys (tables written group by group): the
-        present[codes[np.r_[0, np.flatnonzero(codes[1:] != codes[:-1]) + 1]]] = True  # changes tell
-    else:
-        present = np.bincount(codes, minlength=span).astype(bool)
+    present = GroupSums(codes, span).counts > 0  # run by run for keys written group by group
     occurs = np.flatnonzero(present)
     if len(occurs) < span:
         lookup = np.cumsum(present, dtype=np.intp) - 1
@@ -147,7 +143,8 @@ def factorize_keys(keys: Sequence[pd.Series], *, observed: bool = True, dropna: 
 
     One linear pass per key: integer keys are counted (:func:`_int_codes`), other keys hashed by
     ``pd.factorize``; which key combinations occur is marked in a table of all combinations (no sort
-    of the rows), falling back to ``np.unique`` only when that table would be far longer than the data.
+    of the rows, :func:`logstats.core.groups.occurring_keys`), falling back to ``np.unique`` only when
+    that table would be far longer than the data.
     """
     codes_list, levels_list = [], []
     any_cat = False
@@ -196,19 +193,16 @@ def factorize_keys(keys: Sequence[pd.Series], *, observed: bool = True, dropna: 
     else:
         # ascending codes: sorted key order (first-seen order if sort=False)
         if len(codes_list) == 1 and all_levels_occur:
-            uniq = np.arange(total, dtype=np.intp)
-        elif total <= max(4 * n, 1 << 20):
-            occurs = np.zeros(total, dtype=bool)
-            occurs[flat[keyed] if n_unkeyed else flat] = True
-            uniq = np.flatnonzero(occurs)
+            uniq = inv = np.arange(total, dtype=np.intp)
         else:
-            uniq = np.unique(flat[keyed])
+            uniq, inv = occurring_keys(flat[keyed] if n_unkeyed else flat, total)
         if len(uniq) == total:
             out_codes = flat  # every combination observed: the codes are already final
+        elif n_unkeyed:
+            out_codes = np.full(n, -1, dtype=np.intp)
+            out_codes[keyed] = inv
         else:
-            lookup = np.full(total, -1, dtype=np.intp)
-            lookup[uniq] = np.arange(len(uniq), dtype=np.intp)
-            out_codes = np.where(keyed, lookup[np.where(keyed, flat, 0)], -1)
+            out_codes = inv
     names = [k.name for k in keys]
     if len(codes_list) == 1:
         index = levels_list[0].take(uniq)

@@ -23,6 +23,7 @@ from typing import Any
 
 import numpy as np
 
+from logstats.core.groups import GroupSums, scatter_sum
 from logstats.core.transform import LoggedValues, as_float_array, posinf_message, to_logs
 
 __all__ = [
@@ -577,90 +578,6 @@ def log_moments_by_codes(logs: Any, codes: Any, ngroups: int) -> LogMoments:
     return _grouped(lv, np.asarray(codes), ngroups)
 
 
-#: ``np.add.at`` has had a fast unbuffered loop since numpy 1.25 and with numpy 2 beats ``np.bincount``
-#: (about 1.3x per pass, measured with numpy 2.4); both add in element order, so the sums are the same
-#: bit for bit.
-_FAST_ADD_AT = np.lib.NumpyVersion(np.__version__) >= "2.0.0"
-
-
-def _scatter_sum(idx: np.ndarray, size: int, weights: np.ndarray | None = None) -> np.ndarray:
-    """Per-index sums of ``weights`` (counts without), in element order; ``idx`` in ``0 .. size-1``."""
-    if not _FAST_ADD_AT:
-        return np.bincount(idx, weights=weights, minlength=size)
-    if weights is None:
-        out = np.zeros(size, dtype=np.intp)
-        np.add.at(out, idx, 1)
-    else:
-        out = np.zeros(size, dtype=np.float64)
-        np.add.at(out, idx, weights)
-    return out
-
-#: Inputs shorter than this always take the scatter path (detecting runs would cost more than it saves).
-RUNS_MIN = 4096
-#: The run path is taken when the group codes change at most once every this many values.
-RUN_LENGTH_MIN = 4
-
-
-def _runs(ik: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
-    """Starts and lengths of the runs of equal codes in ``ik`` when runs are long, else None.
-
-    Rows sorted or blocked by group (as most tables are written: a condition, a well, a plate at a
-    time) have long runs; their sums are then taken run by run with ``np.add.reduceat`` (a contiguous
-    reduction, ~0.3 ns a value) and only one number per run is scattered to its group. ``np.add.at``
-    on sorted codes is slow (each add waits on the previous one to the same slot: ~2.6 ns a value).
-    """
-    N = ik.size
-    if N < RUNS_MIN:
-        return None
-    change = ik[1:] != ik[:-1]
-    if (int(np.count_nonzero(change)) + 1) * RUN_LENGTH_MIN > N:
-        return None
-    starts = np.flatnonzero(change)
-    starts += 1
-    starts = np.concatenate([np.zeros(1, dtype=starts.dtype), starts])
-    lengths = np.diff(starts, append=N)
-    return starts, lengths
-
-
-def _grouped_runs(ik: np.ndarray, yk: np.ndarray, size: int, starts: np.ndarray, lengths: np.ndarray,
-                  spread: bool = True) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Count, mean and m2 per slot (corrected two-pass), summing run by run (see :func:`_runs`)."""
-    rc = ik[starts]
-    n = np.zeros(size, dtype=np.intp)
-    np.add.at(n, rc, lengths)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        mean = _scatter_sum(rc, size, np.add.reduceat(yk, starts)) / n
-        if not spread:
-            return n, mean, np.full(size, np.nan)
-        d = np.repeat(mean[rc], lengths)
-        np.subtract(yk, d, out=d)  # deviations from the first-pass group mean, in one buffer
-        corr = _scatter_sum(rc, size, np.add.reduceat(d, starts))
-        np.multiply(d, d, out=d)
-        m2 = _scatter_sum(rc, size, np.add.reduceat(d, starts)) - corr * corr / n
-        mean = mean + corr / n
-    return n, mean, np.maximum(m2, 0.0)
-
-
-def _grouped_scatter(ik: np.ndarray, yk: np.ndarray, size: int, work: np.ndarray | None,
-                     spread: bool = True) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Count, mean and m2 per slot (corrected two-pass), one scatter-add pass per sum."""
-    n = _scatter_sum(ik, size)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        mean = _scatter_sum(ik, size, yk) / n
-        if not spread:
-            return n, mean, np.full(size, np.nan)
-        if work is not None and work.size >= ik.size:
-            d = np.take(mean, ik, out=work[: ik.size], mode="clip")  # ik is in range: no check needed
-        else:
-            d = np.take(mean, ik)
-        np.subtract(yk, d, out=d)  # deviations from the first-pass group mean, in one buffer
-        corr = _scatter_sum(ik, size, d)
-        np.multiply(d, d, out=d)
-        m2 = _scatter_sum(ik, size, d) - corr * corr / n
-        mean = mean + corr / n
-    return n, mean, np.maximum(m2, 0.0)
-
-
 def _grouped(lv: LoggedValues, codes: Any, ngroups: int, *, keyed_all: bool | None = None,
              work: np.ndarray | None = None, spread: bool = True) -> LogMoments:
     """Corrected two-pass moments per group (``keyed_all``: no negative code; computed when None).
@@ -699,18 +616,27 @@ def _grouped(lv: LoggedValues, codes: Any, ngroups: int, *, keyed_all: bool | No
         if not keyed_all:
             valid &= idx >= 0
         ik, yk = idx[valid], yf[valid]
-    runs = _runs(ik)
-    if runs is not None:
-        n, mean, m2 = _grouped_runs(ik, yk, size, *runs, spread=spread)
-    else:
-        n, mean, m2 = _grouped_scatter(ik, yk, size, work, spread=spread)
+    sums = GroupSums(ik, size)  # run by run when the rows come sorted or blocked by group
+    n = sums.counts
+    with np.errstate(divide="ignore", invalid="ignore"):
+        mean = sums.sum(yk) / n
+        if spread:
+            use_work = work is not None and work.size >= ik.size
+            d = sums.spread(mean, out=work if use_work else None)
+            np.subtract(yk, d, out=d)  # deviations from the first-pass group mean, in one buffer
+            corr = sums.sum(d)
+            np.multiply(d, d, out=d)
+            m2 = np.maximum(sums.sum(d) - corr * corr / n, 0.0)
+            mean = mean + corr / n
+        else:
+            m2 = np.full(size, np.nan)
     mean, m2 = _empty_to_nan(n, mean, m2)
 
     def count(mask: np.ndarray, anywhere: bool) -> np.ndarray:
         if not anywhere:
             return np.zeros(size, dtype=np.int64)
         m = mask if keyed_all else mask & (idx >= 0)
-        return _scatter_sum(idx[m], size)
+        return scatter_sum(idx[m], size)
 
     shape = lead + (ngroups,)
     return LogMoments(

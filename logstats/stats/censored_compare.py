@@ -14,9 +14,10 @@ from typing import Any
 import numpy as np
 from scipy import special, stats
 
+from logstats.core.groups import occurring_keys
 from logstats.core.moments import moments_by_codes
 from logstats.core.transform import check_nonpositive, to_logs
-from logstats.stats._common import _LOG_2PI, _detection_limits, _values_1d, occurring_keys
+from logstats.stats._common import _LOG_2PI, _detection_limits, _values_1d
 from logstats.stats.censored import _mills, _t_quantile
 from logstats.stats.compare import _check_codes, _check_level, _check_method, adjust_p
 

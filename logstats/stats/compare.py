@@ -36,9 +36,9 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
+from logstats.core.groups import occurring_keys
 from logstats.core.moments import LogMoments, log_moments_by_codes, moments_by_codes
 from logstats.core.transform import check_nonpositive
-from logstats.stats._common import occurring_keys
 from logstats.stats.estimate import t_quantile
 
 __all__ = [

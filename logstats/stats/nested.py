@@ -15,8 +15,9 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
+from logstats.core.groups import occurring_keys, unique_rows
 from logstats.core.transform import check_nonpositive, to_logs
-from logstats.stats._common import _count, _group_codes, _values_1d, occurring_keys, unique_rows
+from logstats.stats._common import _count, _group_codes, _values_1d
 from logstats.stats.estimate import _check_level
 
 __all__ = ["plan_power", "variance_components"]

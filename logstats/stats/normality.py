@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
-from logstats.stats._common import GroupSums, group_sum
+from logstats.core.groups import GroupSums
 
 __all__: list[str] = []
 
@@ -62,7 +62,7 @@ def _sw_coefficients(rank: np.ndarray, nrow: np.ndarray, gs: np.ndarray, G: int,
     inner = lo < half
     m_row = np.where(inner, _ppnd((lo + 1 - 0.375) / (nf + 0.25)), 0.0)
     lower = inner & (rank < nrow - 1 - rank)
-    summ2 = 2.0 * group_sum(m_row[lower] ** 2, gs[lower], G)
+    summ2 = 2.0 * GroupSums(gs[lower], G).sum(m_row[lower] ** 2)
     ng = n.astype(np.float64)
     with np.errstate(divide="ignore", invalid="ignore"):
         ssumm2 = np.sqrt(summ2)

@@ -17,11 +17,11 @@ from typing import Any
 import numpy as np
 from scipy import special
 
+from logstats.core.groups import GroupSums
 from logstats.core.moments import moments_by_codes
 from logstats.core.transform import check_nonpositive, to_logs
 from logstats.stats._common import (
     _LOG_2PI,
-    GroupSums,
     _count,
     _detection_limits,
     _group_codes,
