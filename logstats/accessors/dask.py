@@ -469,17 +469,19 @@ class _DaskFrameBase(FigureMethods):
         """(the frame to load, a function of the loaded pandas frame returning its accessor and keys)."""
         return self._obj, lambda pdf: (pdf.logstats, {})
 
-    def _loaded(self, name: str, args: dict[str, Any]) -> Any:
+    def _loaded(self, name: str, args: dict[str, Any], template: Any = None) -> Any:
         """A method that needs the values: lazily, the partitions are loaded into one pandas frame and the
-        pandas accessor computes. The empty result template comes from the same call on the meta."""
+        pandas accessor computes. The empty result template comes from the same call on the meta
+        (unless given)."""
         import dask.dataframe as dd
         from dask import delayed
 
         args = dict(args)
         args.pop("split_every", None)
         frame, accessor = self._pandas_call()
-        shape_args = _without_row_arrays(name, args)
-        template = _template(lambda pdf: _call_pandas(accessor, pdf, name, shape_args), frame)
+        if template is None:
+            shape_args = _without_row_arrays(name, args)
+            template = _template(lambda pdf: _call_pandas(accessor, pdf, name, shape_args), frame)
         result = delayed(_load_and_call, pure=True)(accessor, name, args, *frame.to_delayed())
         if template is None or np.isscalar(template):
             return result
@@ -558,65 +560,28 @@ def _template(fn: Any, frame: Any) -> Any:
     return out.iloc[:0] if hasattr(out, "iloc") and getattr(out, "ndim", 0) == 2 else out
 
 
-def _fold_template(req: _FoldRequest) -> Any:
-    """The empty fold-change table for these options, from the kernel on a tiny numeric problem."""
-    import pandas as pd
-
-    from logstats.accessors.pandas import fold_change_frame
-    from logstats.stats.compare import fold_change_codes
-
-    opts = {k: v for k, v in req.options.items() if k not in ("skipna", "nonpositive")}
-    rep = np.array([0, 1, 0, 1]) if req.replicate is not None else None
-    res = fold_change_codes(np.array([1.0, 2.0, 3.0, 5.0]), np.array([0, 0, 1, 1]), 2, 0, replicate_codes=rep,
-                            n_replicates=2 if rep is not None else None, **opts)
-    strata = None
-    if req.within:
-        strata = pd.MultiIndex.from_tuples([tuple(None for _ in req.within)], names=req.within) \
-            if len(req.within) > 1 else pd.Index([None], name=req.within[0], dtype=object)
-    results = [(c, res) for c in req.columns]
-    frame = fold_change_frame(results, pd.Index([None, None], name=req.by, dtype=object), 0, strata,
-                              "replicate" if req.replicate is not None else "value")
-    return frame.iloc[:0]
-
-
-def _fold_change_loaded(frame: Any, kwargs: dict[str, Any]) -> Any:
-    """The pandas ``fold_change`` on the computed frame (the loading path of the dask accessor)."""
-    return frame.logstats.fold_change(**kwargs)
-
-
-def _loaded_fold_change(ddf: Any, kwargs: dict[str, Any]) -> Any:
-    """A lazy one-partition result of the pandas ``fold_change`` on the whole of ``ddf``.
-
-    The empty template comes from the same call on a tiny invented frame with the same columns (every
-    key two levels of small integers, values 1..8, the reference level 0), so its fields and dtypes are
-    those of the real result."""
+def _fold_change_template(meta: Any, kwargs: dict[str, Any], columns: list[Any]) -> Any:
+    """The empty fold-change table of a call: the pandas ``fold_change`` itself on a tiny invented
+    frame with the call's key, value and limit columns (every key two levels of small integers, values
+    1..8, the reference level 0), so its fields and dtypes are those of the real result whatever the
+    options (the meta cannot serve: its reference level does not exist)."""
     import warnings
 
-    import dask.dataframe as dd
     import pandas as pd
-    from dask import delayed
 
-    from logstats.accessors._labels import resolve_keys
-
-    meta = ddf._meta
     keys = [k for key in (kwargs["by"], kwargs["within"], kwargs["replicate"]) if key is not None
             for k in (key if isinstance(key, list) else [key])]
-    resolve_keys(meta, keys, keyword="by")  # a KeyError naming the column, as the other paths give
     tiny = pd.DataFrame(index=range(8))
-    for col in meta.columns:
+    for col in columns:
         tiny[col] = np.linspace(1.0, 8.0, 8)
-    tiny[kwargs["by"]] = np.repeat([0, 1], 4)
     for key in keys:
-        if key != kwargs["by"]:
-            tiny[key] = np.tile([0, 1], 4)
+        tiny[key] = np.repeat([0, 1], 4) if key == kwargs["by"] else np.tile([0, 1], 4)
     dl = kwargs["detection_limit"]
     if isinstance(dl, (str, tuple)) and dl in meta.columns:
         tiny[dl] = 0.5
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        template = tiny.logstats.fold_change(**{**kwargs, "reference": 0}).iloc[:0]
-    result = delayed(_fold_change_loaded, pure=True)(ddf, kwargs)
-    return dd.from_delayed([result], meta=template, verify_meta=False)
+        return tiny.logstats.fold_change(**{**kwargs, "reference": 0, "columns": columns}).iloc[:0]
 
 
 class LogstatsDaskFrameAccessor(_DaskFrameBase):
@@ -690,22 +655,24 @@ class LogstatsDaskFrameAccessor(_DaskFrameBase):
                                                 or np.isscalar(detection_limit)):
             raise TypeError("detection_limit= on a dask DataFrame takes a number or a column label, not "
                             f"{type(detection_limit).__name__} (compute() the frame to pass aligned arrays)")
-        if detection_limit is not None or (isinstance(replicate, list) and len(replicate) > 1):
-            kwargs = dict(by=by, reference=reference, columns=columns, replicate=replicate, paired=paired,
-                          within=within, equal_var=equal_var, confidence_level=confidence_level,
-                          adjust=adjust, equivalence=equivalence, equivalence_alpha=equivalence_alpha,
-                          detection_limit=detection_limit, skipna=skipna, nonpositive=nonpositive,
-                          observed=observed, dropna=dropna)
-            return _loaded_fold_change(self._obj, kwargs)
-        if isinstance(replicate, list):
-            replicate = replicate[0]
-        keys = within_list + [by] + ([replicate] if replicate is not None else [])
+        kwargs = dict(by=by, reference=reference, columns=columns, replicate=replicate, paired=paired,
+                      within=within, equal_var=equal_var, confidence_level=confidence_level, adjust=adjust,
+                      equivalence=equivalence, equivalence_alpha=equivalence_alpha,
+                      detection_limit=detection_limit, skipna=skipna, nonpositive=nonpositive,
+                      observed=observed, dropna=dropna)
         meta = self._obj._meta
-        for keyword, items in (("by", [by]), ("within", within_list),
-                               ("replicate", [] if replicate is None else [replicate])):
+        replicates = [] if replicate is None else replicate if isinstance(replicate, list) else [replicate]
+        for keyword, items in (("by", [by]), ("within", within_list), ("replicate", replicates)):
             if items:
                 resolve_keys(meta, items, keyword=keyword)  # a KeyError naming the keyword and column
-        cols = value_columns(meta, columns, exclude=keys)
+        limit_col = [detection_limit] if isinstance(detection_limit, (str, tuple)) and \
+            detection_limit in meta.columns else []
+        cols = value_columns(meta, columns, exclude=within_list + [by] + replicates + limit_col)
+        template = _fold_change_template(meta, kwargs, cols)
+        if detection_limit is not None or len(replicates) > 1:
+            return self._loaded("fold_change", kwargs, template=template)  # needs every value of a level
+        replicate = replicates[0] if replicates else None
+        keys = within_list + [by] + ([replicate] if replicate is not None else [])
         req = _FoldRequest(by=by, reference=reference, replicate=replicate, within=within_list, columns=cols,
                            options=dict(paired=paired, equal_var=equal_var, confidence_level=confidence_level,
                                         adjust=adjust, equivalence=equivalence,
@@ -714,7 +681,6 @@ class LogstatsDaskFrameAccessor(_DaskFrameBase):
         part_kw: dict[str, Any] = {"by": keys, "columns": cols, "observed": observed, "dropna": dropna}
         import dask.dataframe as dd
 
-        template = _fold_template(req)
         parts = [delayed(_partition_moments, pure=True)(p, **part_kw) for p in self._obj.to_delayed()]
         k = max(int(split_every or SPLIT_EVERY), 2)
         while len(parts) > 1:
@@ -756,7 +722,7 @@ class LogstatsDaskSeriesAccessor(_DaskFrameBase):
             key_names.append(key.name)
         return frame, key_cols, key_names
 
-    def _loaded(self, name: str, args: dict[str, Any]) -> Any:
+    def _loaded(self, name: str, args: dict[str, Any], template: Any = None) -> Any:
         frame, key_cols, key_names = self._with_keys(args.get("by"))
         value = self._obj.name if self._obj.name is not None else "value"
         series_name = self._obj.name
@@ -772,8 +738,9 @@ class LogstatsDaskSeriesAccessor(_DaskFrameBase):
         from dask import delayed
 
         call_args.pop("split_every", None)
-        shape_args = _without_row_arrays(name, call_args)
-        template = _template(lambda pdf: _call_pandas(accessor, pdf, name, shape_args), frame)
+        if template is None:
+            shape_args = _without_row_arrays(name, call_args)
+            template = _template(lambda pdf: _call_pandas(accessor, pdf, name, shape_args), frame)
         result = delayed(_load_and_call, pure=True)(accessor, name, call_args, *frame.to_delayed())
         if template is None or np.isscalar(template):
             return result
