@@ -621,7 +621,8 @@ def _grouped(lv: LoggedValues, codes: Any, ngroups: int, *, keyed_all: bool | No
     with np.errstate(divide="ignore", invalid="ignore"):
         mean = sums.sum(yk) / n
         if spread:
-            use_work = work is not None and work.size >= ik.size
+            # runs: np.repeat of the run means (a fresh array) beats a gather into the reused buffer
+            use_work = work is not None and work.size >= ik.size and not sums.runs
             d = sums.spread(mean, out=work if use_work else None)
             np.subtract(yk, d, out=d)  # deviations from the first-pass group mean, in one buffer
             corr = sums.sum(d)
